@@ -1,0 +1,1 @@
+fn main() { std::process::exit(dosemill_engine::cli::main()); }

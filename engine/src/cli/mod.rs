@@ -1,0 +1,59 @@
+//! Command-line interface: one module per subcommand; each owns its clap `Args` and a `run`.
+//!
+//! Exit codes: 0 success, 1 a run or check failed, 2 bad input (usage, deck, values).
+
+use clap::{Parser, Subcommand};
+
+pub mod attenuation;
+pub mod materials;
+pub mod report;
+pub mod spectrum;
+
+/// Exit code for bad input (unknown material, out-of-range value, malformed deck).
+pub const EXIT_BAD_INPUT: i32 = 2;
+/// Exit code when a run or validation failed.
+pub const EXIT_FAILURE: i32 = 1;
+
+#[derive(Parser, Debug)]
+#[command(name = "dosemill", version, about = "Monte Carlo photon transport for kilovoltage x-ray dosimetry and imaging scatter (research use)")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// List the built-in materials library.
+    Materials(materials::Args),
+    /// Attenuation and energy-absorption coefficients of a material.
+    Attenuation(attenuation::Args),
+    /// X-ray tube spectrum and beam quality.
+    Spectrum(spectrum::Args),
+    /// Summarise a result file and draw its plots.
+    Report(report::Args),
+}
+
+/// Parse the command line and run; returns the process exit code.
+pub fn main() -> i32 {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { EXIT_BAD_INPUT } else { 0 };
+            let _ = e.print();
+            return code;
+        }
+    };
+    let result = match cli.command {
+        Command::Materials(a) => materials::run(a),
+        Command::Attenuation(a) => attenuation::run(a),
+        Command::Spectrum(a) => spectrum::run(a),
+        Command::Report(a) => report::run(a),
+    };
+    match result {
+        Ok(code) => code,
+        Err(e) => {
+            eprintln!("dosemill: error: {e:#}");
+            EXIT_FAILURE
+        }
+    }
+}

@@ -1,0 +1,1 @@
+//! deck (under construction)

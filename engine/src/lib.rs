@@ -1,0 +1,15 @@
+//! dosemill engine: photon transport physics, sources, scoring, decks, HDF5 output and the CLI.
+//!
+//! Secondary electrons are not transported: their energy is deposited at the interaction point
+//! (kerma approximation). See README for where this holds.
+
+pub mod cli;
+pub mod deck;
+pub mod output;
+pub mod physics;
+pub mod report;
+pub mod rng;
+pub mod score;
+pub mod source;
+pub mod spectrum;
+pub mod transport;

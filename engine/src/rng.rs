@@ -1,0 +1,1 @@
+//! rng (under construction)

@@ -1,0 +1,1 @@
+//! score (under construction)

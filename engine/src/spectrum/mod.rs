@@ -1,0 +1,1 @@
+//! spectrum (under construction)

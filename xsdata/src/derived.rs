@@ -1,0 +1,1 @@
+//! derived (under construction)

@@ -1,0 +1,1 @@
+//! formula (under construction)

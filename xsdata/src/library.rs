@@ -1,0 +1,1 @@
+//! library (under construction)

@@ -1,1 +1,365 @@
-//! transport (under construction)
+//! The transport loop: one history at a time, photon by photon, and the parallel run driver.
+//!
+//! A history starts one source photon and follows it and any fluorescence photons it causes
+//! until each is absorbed, falls below the energy cut-off or leaves the world. Slab geometry is
+//! tracked exactly (distance to the next boundary vs. a sampled free path, resampled at each
+//! boundary, which the memoryless exponential allows).
+//!
+//! Parallel runs: histories form fixed chunks; workers (one per thread) pull chunk indices from a
+//! shared counter and score into their own tallies; tallies merge exactly (integer sums), so the
+//! result does not depend on the thread count or on which worker ran which chunk.
+
+use crate::physics::{compton, fluorescence, isotropic, photoelectric, rotate, xs::MaterialXs, Interaction, PhysicsOptions};
+use crate::rng::{chunk_range, history_stream, Stream};
+use crate::score::{counts, PhotonView, Scorer};
+use crate::source::Source;
+use dosemill_geometry::{Region, SlabStack, Vec3};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+
+/// Most photons a history can hold waiting (fluorescence); beyond this, the energy of further
+/// fluorescence photons is deposited locally and counted as such (it never happens in practice).
+pub const STACK_DEPTH: usize = 32;
+
+/// The geometry a problem is tracked in.
+#[derive(Debug, Clone)]
+pub enum Geometry {
+    /// A stack of slabs, tracked exactly.
+    Slabs(SlabStack),
+}
+
+/// Everything a run needs except the run settings.
+#[derive(Debug, Clone)]
+pub struct Problem {
+    /// Materials, indexed by the geometry's material indices.
+    pub materials: Vec<MaterialXs>,
+    /// The geometry.
+    pub geometry: Geometry,
+    /// The source.
+    pub source: Source,
+    /// Physics switches.
+    pub options: PhysicsOptions,
+    /// The scorers (configuration; their tallies are ignored and zeroed per worker).
+    pub scorers: Vec<Scorer>,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Photon {
+    pos: Vec3,
+    dir: Vec3,
+    kev: f64,
+    weight: f64,
+    region: Region,
+    incoherent: u16,
+    coherent: u16,
+    fluorescence: bool,
+}
+
+impl Photon {
+    #[inline]
+    fn view(&self) -> PhotonView {
+        PhotonView {
+            pos: self.pos,
+            dir: self.dir,
+            kev: self.kev,
+            weight: self.weight,
+            incoherent: self.incoherent,
+            coherent: self.coherent,
+            fluorescence: self.fluorescence,
+        }
+    }
+}
+
+/// Energy bookkeeping of one history (keV): incident = deposited + escaped.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct HistoryOutcome {
+    /// Energy of the source photon.
+    pub incident_kev: f64,
+    /// Energy deposited anywhere (object and world medium).
+    pub deposited_kev: f64,
+    /// Energy carried out of the world by escaping photons.
+    pub escaped_kev: f64,
+}
+
+struct Ctx<'a> {
+    scorers: &'a mut [Scorer],
+    history: u64,
+    outcome: HistoryOutcome,
+}
+
+impl Ctx<'_> {
+    #[inline]
+    fn deposit(&mut self, region: Region, pos: Vec3, kev: f64) {
+        if kev > 0.0 {
+            self.outcome.deposited_kev += kev;
+            for s in self.scorers.iter_mut() {
+                s.deposit(region, pos, kev, self.history);
+            }
+        }
+    }
+    #[inline]
+    fn escape(&mut self, p: &Photon) {
+        self.outcome.escaped_kev += p.kev * p.weight;
+        let view = p.view();
+        for s in self.scorers.iter_mut() {
+            s.escape(&view, self.history);
+        }
+    }
+    #[inline]
+    fn count(&mut self, bin: usize, w: f64) {
+        for s in self.scorers.iter_mut() {
+            s.count(bin, w, self.history);
+        }
+    }
+}
+
+impl Problem {
+    /// Runs history `history` of a run seeded with `seed`, scoring into `scorers`.
+    /// A pure function of (problem, seed, history): any history can be replayed alone.
+    pub fn run_history(&self, seed: u64, history: u64, scorers: &mut [Scorer]) -> HistoryOutcome {
+        let mut rng = history_stream(seed, history);
+        let (pos, dir, kev) = self.source.sample(&mut rng);
+        let mut ctx = Ctx { scorers, history, outcome: HistoryOutcome { incident_kev: kev, ..Default::default() } };
+        let mut stack = [Photon { pos, dir, kev, weight: 1.0, region: Region::ESCAPED, incoherent: 0, coherent: 0, fluorescence: false }; STACK_DEPTH];
+        let mut depth = 1usize;
+        match &self.geometry {
+            Geometry::Slabs(slabs) => {
+                stack[0].region = enter_world(slabs, pos, dir, &mut stack[0].pos);
+                while depth > 0 {
+                    depth -= 1;
+                    let photon = stack[depth];
+                    self.track_slabs(slabs, photon, &mut rng, &mut ctx, &mut stack, &mut depth);
+                }
+            }
+        }
+        ctx.outcome
+    }
+
+    /// Follows one photon in a slab stack until it is absorbed or escapes.
+    #[inline]
+    fn track_slabs(
+        &self,
+        slabs: &SlabStack,
+        mut p: Photon,
+        rng: &mut Stream,
+        ctx: &mut Ctx,
+        stack: &mut [Photon; STACK_DEPTH],
+        depth: &mut usize,
+    ) {
+        if p.kev < self.options.cutoff_kev {
+            ctx.count(counts::CUTOFF, p.weight);
+            ctx.deposit(p.region, p.pos, p.kev * p.weight);
+            return;
+        }
+        loop {
+            if p.region.is_escaped() {
+                ctx.escape(&p);
+                return;
+            }
+            let boundary = slabs.step(p.pos, p.dir, p.region);
+            let medium = slabs.material_of(p.region);
+            let free_path = match medium {
+                Some((m, rho)) if rho > 0.0 => rng.exponential() / (self.materials[m as usize].mu_rho_cm2_g(p.kev) * rho),
+                _ => f64::INFINITY,
+            };
+            if free_path >= boundary.distance_cm {
+                p.pos = boundary.landing(p.pos, p.dir);
+                p.region = boundary.next;
+                continue;
+            }
+            p.pos = p.pos + p.dir * free_path;
+            let (m, _) = medium.unwrap();
+            if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
+                return;
+            }
+        }
+    }
+
+    /// One interaction at the photon's position. Returns false when the photon is gone.
+    #[inline]
+    fn interact(
+        &self,
+        p: &mut Photon,
+        material: &MaterialXs,
+        rng: &mut Stream,
+        ctx: &mut Ctx,
+        stack: &mut [Photon; STACK_DEPTH],
+        depth: &mut usize,
+    ) -> bool {
+        let (component, kind) = material.sample_channel(p.kev, rng);
+        let c = &material.components[component];
+        ctx.count(Scorer::interaction_bin(kind), p.weight);
+        match kind {
+            Interaction::Photoelectric => {
+                let mut local = p.kev;
+                if self.options.fluorescence {
+                    let shell = photoelectric::sample_shell(p.kev, c.element, rng);
+                    let emitted = fluorescence::cascade(c.element, shell, rng);
+                    for &line in &emitted.kev[..emitted.count] {
+                        if line >= self.options.cutoff_kev && *depth < STACK_DEPTH {
+                            stack[*depth] = Photon {
+                                pos: p.pos,
+                                dir: isotropic(rng),
+                                kev: line,
+                                weight: p.weight,
+                                region: p.region,
+                                incoherent: p.incoherent,
+                                coherent: p.coherent,
+                                fluorescence: true,
+                            };
+                            *depth += 1;
+                            local -= line;
+                            ctx.count(counts::FLUORESCENCE, p.weight);
+                        }
+                    }
+                }
+                ctx.deposit(p.region, p.pos, local * p.weight);
+                false
+            }
+            Interaction::Incoherent => {
+                let (ratio, cos_theta) = compton::sample(p.kev, c.element, self.options.bound_compton, rng);
+                let scattered = p.kev * ratio;
+                ctx.deposit(p.region, p.pos, (p.kev - scattered) * p.weight);
+                p.kev = scattered;
+                p.dir = rotate(p.dir, cos_theta, std::f64::consts::TAU * rng.uniform());
+                p.incoherent = p.incoherent.saturating_add(1);
+                if p.kev < self.options.cutoff_kev {
+                    ctx.count(counts::CUTOFF, p.weight);
+                    ctx.deposit(p.region, p.pos, p.kev * p.weight);
+                    return false;
+                }
+                true
+            }
+            Interaction::Coherent => {
+                let table = c.rayleigh.as_ref().expect("coherent channel without its table");
+                let cos_theta = table.sample(p.kev, rng);
+                p.dir = rotate(p.dir, cos_theta, std::f64::consts::TAU * rng.uniform());
+                p.coherent = p.coherent.saturating_add(1);
+                true
+            }
+        }
+    }
+}
+
+/// The region a source photon starts in; a photon starting outside the world box is moved to
+/// where its ray enters the box (or escapes at once if it misses).
+fn enter_world(slabs: &SlabStack, pos: Vec3, dir: Vec3, out: &mut Vec3) -> Region {
+    let r = slabs.locate(pos);
+    if !r.is_escaped() {
+        return r;
+    }
+    match slabs.world().bounds.chord(pos, dir) {
+        Some(c) if c.enter_cm >= 0.0 && c.exit_cm > c.enter_cm => {
+            let mut q = pos + dir * c.enter_cm;
+            if let Some(a) = c.enter_axis.index() {
+                let b = slabs.world().bounds;
+                let plane = if dir.axis(a) > 0.0 { b.min_cm.axis(a) } else { b.max_cm.axis(a) };
+                q = q.with_axis(a, plane);
+            }
+            *out = q;
+            slabs.locate(q)
+        }
+        _ => Region::ESCAPED,
+    }
+}
+
+/// How a run is carried out.
+#[derive(Debug, Clone)]
+pub struct RunSettings {
+    /// Histories in the whole run.
+    pub histories: u64,
+    /// Run seed.
+    pub seed: u64,
+    /// Histories per chunk.
+    pub chunk_histories: u64,
+    /// Worker threads (≥ 1).
+    pub threads: usize,
+    /// Show a progress bar on a terminal.
+    pub progress: bool,
+}
+
+/// Merged result of the chunks a run carried out.
+#[derive(Debug, Clone)]
+pub struct RunResult {
+    /// Merged scorers (flushed tallies).
+    pub scorers: Vec<Scorer>,
+    /// Histories carried out.
+    pub histories: u64,
+    /// Chunks carried out, ascending.
+    pub chunks: Vec<u64>,
+    /// Wall time (s).
+    pub wall_time_s: f64,
+}
+
+/// Runs the given chunks of a problem on `settings.threads` workers. If `stop` becomes true,
+/// workers finish the chunk in hand and return; the result then holds the chunks completed.
+pub fn run_chunks(problem: &Problem, settings: &RunSettings, chunks: &[u64], stop: Option<&AtomicBool>) -> RunResult {
+    let start = std::time::Instant::now();
+    let next = AtomicUsize::new(0);
+    let bar = progress_bar(settings, chunks);
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(settings.threads.max(1)).build().expect("thread pool");
+    let partials: Vec<(Vec<Scorer>, Vec<u64>, u64)> = pool.broadcast(|_| {
+        let mut scorers: Vec<Scorer> = problem.scorers.iter().map(Scorer::zeroed).collect();
+        let mut done = Vec::new();
+        let mut histories = 0u64;
+        loop {
+            if stop.is_some_and(|s| s.load(Ordering::Relaxed)) {
+                break;
+            }
+            let i = next.fetch_add(1, Ordering::Relaxed);
+            let Some(&chunk) = chunks.get(i) else { break };
+            let range = chunk_range(chunk, settings.chunk_histories, settings.histories);
+            let n = range.end - range.start;
+            for h in range {
+                problem.run_history(settings.seed, h, &mut scorers);
+            }
+            histories += n;
+            done.push(chunk);
+            if let Some(b) = &bar {
+                b.inc(n);
+            }
+        }
+        for s in &mut scorers {
+            s.tally_mut().flush();
+        }
+        (scorers, done, histories)
+    });
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    let mut merged: Vec<Scorer> = problem.scorers.iter().map(Scorer::zeroed).collect();
+    let mut all_chunks = Vec::new();
+    let mut histories = 0;
+    for (scorers, done, n) in &partials {
+        for (m, s) in merged.iter_mut().zip(scorers) {
+            m.tally_mut().merge(s.tally());
+        }
+        all_chunks.extend_from_slice(done);
+        histories += n;
+    }
+    all_chunks.sort_unstable();
+    RunResult { scorers: merged, histories, chunks: all_chunks, wall_time_s: start.elapsed().as_secs_f64() }
+}
+
+/// Runs every chunk of the run.
+pub fn run(problem: &Problem, settings: &RunSettings) -> RunResult {
+    let n = crate::rng::chunk_count(settings.histories, settings.chunk_histories);
+    let chunks: Vec<u64> = (0..n).collect();
+    run_chunks(problem, settings, &chunks, None)
+}
+
+fn progress_bar(settings: &RunSettings, chunks: &[u64]) -> Option<indicatif::ProgressBar> {
+    use std::io::IsTerminal;
+    if !settings.progress || !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let total: u64 = chunks.iter().map(|&c| {
+        let r = chunk_range(c, settings.chunk_histories, settings.histories);
+        r.end - r.start
+    }).sum();
+    let bar = indicatif::ProgressBar::new(total);
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} histories  {per_sec}  ETA {eta}")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    Some(bar)
+}

@@ -1,1 +1,189 @@
-//! score (under construction)
+//! Scoring: what a run measures. Each scorer is a variant of the closed enum [`Scorer`], fed by
+//! the transport loop through a few events (energy deposited, photon escaping, interaction) and
+//! keeping its bins in a [`Tally`] (history-by-history sums with uncertainties).
+//!
+//! Every score is a mean per incident history with its standard error (1σ). Energy deposited is
+//! kerma-approximation energy: what the photon gives to electrons is counted where it happens.
+
+pub mod tally;
+
+pub use tally::Tally;
+
+use crate::physics::Interaction;
+use dosemill_geometry::{Region, Vec3};
+
+/// J per keV.
+pub const JOULE_PER_KEV: f64 = 1.602_176_634e-16;
+
+/// The state of a photon as scorers see it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PhotonView {
+    /// Position (cm).
+    pub pos: Vec3,
+    /// Unit direction.
+    pub dir: Vec3,
+    /// Energy (keV).
+    pub kev: f64,
+    /// Statistical weight.
+    pub weight: f64,
+    /// Incoherent scatterings so far.
+    pub incoherent: u16,
+    /// Coherent scatterings so far.
+    pub coherent: u16,
+    /// True for a fluorescence photon (or a descendant of one).
+    pub fluorescence: bool,
+}
+
+impl PhotonView {
+    /// True when the photon has not interacted since it left the source.
+    #[inline]
+    pub fn uncollided(&self) -> bool {
+        self.incoherent == 0 && self.coherent == 0 && !self.fluorescence
+    }
+}
+
+/// Indices of the interaction-count bins.
+pub mod counts {
+    /// Photoelectric absorptions.
+    pub const PHOTOELECTRIC: usize = 0;
+    /// Incoherent scatterings.
+    pub const INCOHERENT: usize = 1;
+    /// Coherent scatterings.
+    pub const COHERENT: usize = 2;
+    /// Fluorescence photons emitted (above the cut-off).
+    pub const FLUORESCENCE: usize = 3;
+    /// Photons absorbed for falling below the energy cut-off.
+    pub const CUTOFF: usize = 4;
+    /// Labels, in bin order.
+    pub const LABELS: [&str; 5] = ["photoelectric", "incoherent", "coherent", "fluorescence_emitted", "below_cutoff"];
+}
+
+/// A scorer and its bins.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Scorer {
+    /// Energy deposited per region: one bin per slab layer, the last bin for the world medium.
+    RegionEnergy {
+        /// The tally (layers + 1 bins, keV per history).
+        tally: Tally,
+    },
+    /// Energy deposited in depth bins along z, over the whole lateral extent.
+    DepthEnergy {
+        /// Front of the first bin (cm).
+        z0_cm: f64,
+        /// Bin width (cm).
+        dz_cm: f64,
+        /// The tally (keV per history per bin).
+        tally: Tally,
+    },
+    /// Energy and number of photons leaving the problem forward (+z) and backward (−z).
+    Escape {
+        /// Bins: forward energy, backward energy (keV), forward count, backward count.
+        tally: Tally,
+    },
+    /// Number of interactions of each type per history (see [`counts`]).
+    Interactions {
+        /// The tally.
+        tally: Tally,
+    },
+    /// Spectrum of photons leaving forward, split into uncollided and scattered.
+    TransmittedSpectrum {
+        /// Lowest energy (keV).
+        e0_kev: f64,
+        /// Bin width (keV).
+        de_kev: f64,
+        /// Number of energy bins.
+        bins: usize,
+        /// The tally: bins `0..bins` uncollided, `bins..2·bins` scattered (photons per history).
+        tally: Tally,
+    },
+}
+
+impl Scorer {
+    /// The tally of any scorer.
+    pub fn tally(&self) -> &Tally {
+        match self {
+            Scorer::RegionEnergy { tally }
+            | Scorer::DepthEnergy { tally, .. }
+            | Scorer::Escape { tally }
+            | Scorer::Interactions { tally }
+            | Scorer::TransmittedSpectrum { tally, .. } => tally,
+        }
+    }
+
+    /// The tally of any scorer, mutably.
+    pub fn tally_mut(&mut self) -> &mut Tally {
+        match self {
+            Scorer::RegionEnergy { tally }
+            | Scorer::DepthEnergy { tally, .. }
+            | Scorer::Escape { tally }
+            | Scorer::Interactions { tally }
+            | Scorer::TransmittedSpectrum { tally, .. } => tally,
+        }
+    }
+
+    /// A zeroed copy with the same configuration.
+    pub fn zeroed(&self) -> Scorer {
+        let mut s = self.clone();
+        let n = s.tally().len();
+        *s.tally_mut() = Tally::new(n);
+        s
+    }
+
+    /// Energy `kev` (× weight) deposited at `pos` in `region`.
+    #[inline]
+    pub fn deposit(&mut self, region: Region, pos: Vec3, kev: f64, history: u64) {
+        match self {
+            Scorer::RegionEnergy { tally } => {
+                let bin = region.index().unwrap_or(tally.len() - 1).min(tally.len() - 1);
+                tally.add(bin, kev, history);
+            }
+            Scorer::DepthEnergy { z0_cm, dz_cm, tally } => {
+                let f = (pos.z - *z0_cm) / *dz_cm;
+                if f >= 0.0 && f < tally.len() as f64 {
+                    tally.add(f as usize, kev, history);
+                }
+            }
+            _ => {}
+        }
+    }
+
+    /// A photon leaving the problem.
+    #[inline]
+    pub fn escape(&mut self, photon: &PhotonView, history: u64) {
+        match self {
+            Scorer::Escape { tally } => {
+                let (e, c) = if photon.dir.z > 0.0 { (0, 2) } else { (1, 3) };
+                tally.add(e, photon.kev * photon.weight, history);
+                tally.add(c, photon.weight, history);
+            }
+            Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, tally } => {
+                if photon.dir.z > 0.0 {
+                    let f = (photon.kev - *e0_kev) / *de_kev;
+                    if f >= 0.0 && f < *bins as f64 {
+                        let offset = if photon.uncollided() { 0 } else { *bins };
+                        tally.add(offset + f as usize, photon.weight, history);
+                    }
+                }
+            }
+            _ => {}
+        }
+    }
+
+    /// An interaction or a transport event counted in the [`counts`] bins.
+    #[inline]
+    pub fn count(&mut self, bin: usize, weight: f64, history: u64) {
+        if let Scorer::Interactions { tally } = self {
+            tally.add(bin, weight, history);
+        }
+    }
+
+    /// The count bin of an interaction.
+    #[inline]
+    pub fn interaction_bin(kind: Interaction) -> usize {
+        match kind {
+            Interaction::Photoelectric => counts::PHOTOELECTRIC,
+            Interaction::Incoherent => counts::INCOHERENT,
+            Interaction::Coherent => counts::COHERENT,
+        }
+    }
+}

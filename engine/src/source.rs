@@ -28,7 +28,9 @@ impl AliasTable {
         let mut prob = vec![0.0; n];
         let mut alias = vec![0u32; n];
         let (mut small, mut large): (Vec<usize>, Vec<usize>) = (0..n).partition(|&i| scaled[i] < 1.0);
-        while let (Some(s), Some(&l)) = (small.pop(), large.last()) {
+        while !small.is_empty() && !large.is_empty() {
+            let s = small.pop().unwrap();
+            let l = *large.last().unwrap();
             prob[s] = scaled[s];
             alias[s] = l as u32;
             scaled[l] -= 1.0 - scaled[s];
@@ -299,7 +301,7 @@ mod tests {
 
     #[test]
     fn alias_table_reproduces_weights_exactly() {
-        let w = [0.1, 3.0, 0.0, 2.5, 1.4, 0.0001];
+        let w = [0.1, 3.0, 0.0, 2.5, 1.4, 0.0001, 0.5, 0.9];
         let t = AliasTable::new(&w).unwrap();
         let total: f64 = w.iter().sum();
         for (p, w) in t.probabilities().iter().zip(w) {

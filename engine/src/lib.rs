@@ -3,6 +3,7 @@
 //! Secondary electrons are not transported: their energy is deposited at the interaction point
 //! (kerma approximation). See README for where this holds.
 
+pub mod benchmarks;
 pub mod cli;
 pub mod deck;
 pub mod output;

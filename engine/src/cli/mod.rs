@@ -5,6 +5,7 @@
 use clap::{Parser, Subcommand};
 
 pub mod attenuation;
+pub mod bench;
 pub mod materials;
 pub mod report;
 pub mod spectrum;
@@ -31,6 +32,8 @@ enum Command {
     Spectrum(spectrum::Args),
     /// Summarise a result file and draw its plots.
     Report(report::Args),
+    /// Measure the speed of the reference problems.
+    Bench(bench::Args),
 }
 
 /// Parse the command line and run; returns the process exit code.
@@ -48,6 +51,7 @@ pub fn main() -> i32 {
         Command::Attenuation(a) => attenuation::run(a),
         Command::Spectrum(a) => spectrum::run(a),
         Command::Report(a) => report::run(a),
+        Command::Bench(a) => bench::run_bench(a),
     };
     match result {
         Ok(code) => code,

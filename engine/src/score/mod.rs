@@ -85,7 +85,8 @@ pub enum Scorer {
         /// The tally.
         tally: Tally,
     },
-    /// Spectrum of photons leaving forward, split into uncollided and scattered.
+    /// Spectrum of photons leaving the problem forward (+z), or in every direction, split into
+    /// uncollided source photons, scattered source photons and fluorescence photons.
     TransmittedSpectrum {
         /// Lowest energy (keV).
         e0_kev: f64,
@@ -93,12 +94,40 @@ pub enum Scorer {
         de_kev: f64,
         /// Number of energy bins.
         bins: usize,
-        /// The tally: bins `0..bins` uncollided, `bins..2·bins` scattered (photons per history).
+        /// Count photons leaving in every direction, not only forward.
+        all_directions: bool,
+        /// The tally: bins `0..bins` uncollided, `bins..2·bins` scattered, `2·bins..3·bins`
+        /// fluorescence (photons per history).
         tally: Tally,
     },
 }
 
 impl Scorer {
+    /// Energy deposited per layer of a stack of `layers` layers (+1 bin for the world medium).
+    pub fn region_energy(layers: usize) -> Self {
+        Scorer::RegionEnergy { tally: Tally::new(layers + 1) }
+    }
+
+    /// Energy deposited in `bins` depth bins of width `dz_cm` from `z0_cm`.
+    pub fn depth_energy(z0_cm: f64, dz_cm: f64, bins: usize) -> Self {
+        Scorer::DepthEnergy { z0_cm, dz_cm, tally: Tally::new(bins) }
+    }
+
+    /// Energy and photons leaving forward and backward.
+    pub fn escape_counter() -> Self {
+        Scorer::Escape { tally: Tally::new(4) }
+    }
+
+    /// Interaction counts.
+    pub fn interactions() -> Self {
+        Scorer::Interactions { tally: Tally::new(counts::LABELS.len()) }
+    }
+
+    /// Spectrum of escaping photons in `bins` bins of `de_kev` from `e0_kev`.
+    pub fn transmitted_spectrum(e0_kev: f64, de_kev: f64, bins: usize, all_directions: bool) -> Self {
+        Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, all_directions, tally: Tally::new(3 * bins) }
+    }
+
     /// The tally of any scorer.
     pub fn tally(&self) -> &Tally {
         match self {
@@ -156,11 +185,17 @@ impl Scorer {
                 tally.add(e, photon.kev * photon.weight, history);
                 tally.add(c, photon.weight, history);
             }
-            Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, tally } => {
-                if photon.dir.z > 0.0 {
+            Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, all_directions, tally } => {
+                if *all_directions || photon.dir.z > 0.0 {
                     let f = (photon.kev - *e0_kev) / *de_kev;
                     if f >= 0.0 && f < *bins as f64 {
-                        let offset = if photon.uncollided() { 0 } else { *bins };
+                        let offset = if photon.fluorescence {
+                            2 * *bins
+                        } else if photon.uncollided() {
+                            0
+                        } else {
+                            *bins
+                        };
                         tally.add(offset + f as usize, photon.weight, history);
                     }
                 }

@@ -1,0 +1,44 @@
+//! `dosemill bench`: speed of the reference problems on this machine.
+
+use crate::benchmarks;
+use crate::score::{counts, Scorer};
+use crate::transport::{run, RunSettings};
+
+/// Arguments of `dosemill bench`.
+#[derive(clap::Args, Debug)]
+pub struct Args {
+    /// Histories to run.
+    #[arg(long, default_value_t = 2_000_000)]
+    pub histories: u64,
+    /// Worker threads (default: all cores).
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// Random seed.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+}
+
+/// Runs P1 and prints histories/s and ns per interaction.
+pub fn run_bench(args: Args) -> anyhow::Result<i32> {
+    let threads = args.threads.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
+    // Interactions per history, from a separate counting run (so the timed run scores depth dose only).
+    let counting = benchmarks::p1(vec![Scorer::interactions()]);
+    let probe = 200_000u64.min(args.histories);
+    let settings = RunSettings { histories: probe, seed: args.seed, chunk_histories: 10_000, threads, progress: false };
+    let c = run(&counting, &settings);
+    let (mean, _) = c.scorers[1].tally().mean_and_sigma(probe);
+    let per_history = mean[counts::PHOTOELECTRIC] + mean[counts::INCOHERENT] + mean[counts::COHERENT];
+
+    let problem = benchmarks::p1(vec![]);
+    let settings = RunSettings { histories: args.histories, seed: args.seed, chunk_histories: 10_000, threads, progress: false };
+    let r = run(&problem, &settings);
+    let rate = r.histories as f64 / r.wall_time_s;
+    println!("P1: 60 keV pencil beam, 20 cm water, full physics, depth dose in 1 mm bins");
+    println!("  threads               {threads}");
+    println!("  histories             {}", r.histories);
+    println!("  wall time             {:.3} s", r.wall_time_s);
+    println!("  histories/s           {:.3e} ({:.3e} per thread)", rate, rate / threads as f64);
+    println!("  interactions/history  {per_history:.3}");
+    println!("  ns per interaction    {:.1} (per thread)", 1e9 * threads as f64 / (rate * per_history));
+    Ok(0)
+}

@@ -202,8 +202,8 @@ impl Problem {
                                 kev: line,
                                 weight: p.weight,
                                 region: p.region,
-                                incoherent: p.incoherent,
-                                coherent: p.coherent,
+                                incoherent: 0,
+                                coherent: 0,
                                 fluorescence: true,
                             };
                             *depth += 1;

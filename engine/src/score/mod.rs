@@ -26,7 +26,7 @@ pub struct PhotonView {
     pub kev: f64,
     /// Statistical weight.
     pub weight: f64,
-    /// Incoherent scatterings so far.
+    /// Incoherent scatterings so far (of this photon; a fluorescence photon starts at zero).
     pub incoherent: u16,
     /// Coherent scatterings so far.
     pub coherent: u16,
@@ -96,8 +96,9 @@ pub enum Scorer {
         bins: usize,
         /// Count photons leaving in every direction, not only forward.
         all_directions: bool,
-        /// The tally: bins `0..bins` uncollided, `bins..2·bins` scattered, `2·bins..3·bins`
-        /// fluorescence (photons per history).
+        /// The tally: bins `0..bins` uncollided source photons, `bins..2·bins` scattered photons
+        /// (source or fluorescence), `2·bins..3·bins` unscattered fluorescence photons (photons per
+        /// history).
         tally: Tally,
     },
 }
@@ -189,12 +190,11 @@ impl Scorer {
                 if *all_directions || photon.dir.z > 0.0 {
                     let f = (photon.kev - *e0_kev) / *de_kev;
                     if f >= 0.0 && f < *bins as f64 {
-                        let offset = if photon.fluorescence {
-                            2 * *bins
-                        } else if photon.uncollided() {
-                            0
-                        } else {
-                            *bins
+                        let unscattered = photon.incoherent == 0 && photon.coherent == 0;
+                        let offset = match (photon.fluorescence, unscattered) {
+                            (false, true) => 0,
+                            (true, true) => 2 * *bins,
+                            (_, false) => *bins,
                         };
                         tally.add(offset + f as usize, photon.weight, history);
                     }

@@ -55,10 +55,26 @@ impl Stream {
         ((self.rng.next_u64() >> 11) + 1) as f64 * (1.0 / (1u64 << 53) as f64)
     }
 
-    /// An exponential deviate with unit mean (number of mean free paths to the next interaction).
+    /// An exponential deviate with unit mean (number of mean free paths to the next
+    /// interaction), by the ziggurat method (Marsaglia & Tsang 2000, as implemented by rand_distr).
     #[inline(always)]
     pub fn exponential(&mut self) -> f64 {
-        -self.uniform_open0().ln()
+        use rand::Rng;
+        self.rng.sample(rand_distr::Exp1)
+    }
+
+    /// (cos φ, sin φ) of an azimuth φ uniform on [0, 2π), without trigonometric functions
+    /// (von Neumann 1951: a point uniform in the unit disc, its angle doubled).
+    #[inline(always)]
+    pub fn azimuth(&mut self) -> (f64, f64) {
+        loop {
+            let a = 2.0 * self.uniform() - 1.0;
+            let b = 2.0 * self.uniform() - 1.0;
+            let r2 = a * a + b * b;
+            if r2 <= 1.0 && r2 > 1e-300 {
+                return ((a * a - b * b) / r2, 2.0 * a * b / r2);
+            }
+        }
     }
 
     /// Raw 64 random bits.

@@ -9,7 +9,7 @@
 //! shared counter and score into their own tallies; tallies merge exactly (integer sums), so the
 //! result does not depend on the thread count or on which worker ran which chunk.
 
-use crate::physics::{compton, fluorescence, isotropic, photoelectric, rotate, xs::MaterialXs, Interaction, PhysicsOptions};
+use crate::physics::{compton, fluorescence, isotropic, photoelectric, rotate, xs::{Lookup, MaterialXs}, Interaction, PhysicsOptions};
 use crate::rng::{chunk_range, history_stream, Stream};
 use crate::score::{counts, PhotonView, Scorer};
 use crate::source::Source;
@@ -18,7 +18,7 @@ use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 /// Most photons a history can hold waiting (fluorescence); beyond this, the energy of further
 /// fluorescence photons is deposited locally and counted as such (it never happens in practice).
-pub const STACK_DEPTH: usize = 32;
+pub const STACK_DEPTH: usize = 8;
 
 /// The geometry a problem is tracked in.
 #[derive(Debug, Clone)]
@@ -52,9 +52,54 @@ struct Photon {
     incoherent: u16,
     coherent: u16,
     fluorescence: bool,
+    /// ln of the energy, kept with it.
+    ln_kev: f64,
+    /// Material whose table lookup is cached (`NO_MATERIAL`: none), the lookup and its μ/ρ.
+    cached_material: u16,
+    cached: Lookup,
+    cached_mu_rho: f64,
 }
 
+const NO_MATERIAL: u16 = u16::MAX;
+
 impl Photon {
+    #[inline]
+    fn new(pos: Vec3, dir: Vec3, kev: f64, weight: f64, region: Region, fluorescence: bool) -> Self {
+        Photon {
+            pos,
+            dir,
+            kev,
+            weight,
+            region,
+            incoherent: 0,
+            coherent: 0,
+            fluorescence,
+            ln_kev: kev.ln(),
+            cached_material: NO_MATERIAL,
+            cached: Lookup::default(),
+            cached_mu_rho: 0.0,
+        }
+    }
+
+    #[inline]
+    fn set_energy(&mut self, kev: f64) {
+        self.kev = kev;
+        self.ln_kev = kev.ln();
+        self.cached_material = NO_MATERIAL;
+    }
+
+    /// μ/ρ of material `m` at the photon's energy, from the cache when possible.
+    #[inline(always)]
+    fn mu_rho(&mut self, m: u16, materials: &[MaterialXs]) -> f64 {
+        if self.cached_material != m {
+            let table = &materials[m as usize];
+            self.cached = table.lookup_ln(self.ln_kev);
+            self.cached_mu_rho = table.mu_rho_at(self.cached);
+            self.cached_material = m;
+        }
+        self.cached_mu_rho
+    }
+
     #[inline]
     fn view(&self) -> PhotonView {
         PhotonView {
@@ -119,7 +164,7 @@ impl Problem {
         let mut rng = history_stream(seed, history);
         let (pos, dir, kev) = self.source.sample(&mut rng);
         let mut ctx = Ctx { scorers, history, outcome: HistoryOutcome { incident_kev: kev, ..Default::default() } };
-        let mut stack = [Photon { pos, dir, kev, weight: 1.0, region: Region::ESCAPED, incoherent: 0, coherent: 0, fluorescence: false }; STACK_DEPTH];
+        let mut stack = [Photon::new(pos, dir, kev, 1.0, Region::ESCAPED, false); STACK_DEPTH];
         let mut depth = 1usize;
         match &self.geometry {
             Geometry::Slabs(slabs) => {
@@ -158,7 +203,7 @@ impl Problem {
             let boundary = slabs.step(p.pos, p.dir, p.region);
             let medium = slabs.material_of(p.region);
             let free_path = match medium {
-                Some((m, rho)) if rho > 0.0 => rng.exponential() / (self.materials[m as usize].mu_rho_cm2_g(p.kev) * rho),
+                Some((m, rho)) if rho > 0.0 => rng.exponential() / (p.mu_rho(m, &self.materials) * rho),
                 _ => f64::INFINITY,
             };
             if free_path >= boundary.distance_cm {
@@ -185,7 +230,7 @@ impl Problem {
         stack: &mut [Photon; STACK_DEPTH],
         depth: &mut usize,
     ) -> bool {
-        let (component, kind) = material.sample_channel(p.kev, rng);
+        let (component, kind) = material.sample_channel_at(p.cached, rng);
         let c = &material.components[component];
         ctx.count(Scorer::interaction_bin(kind), p.weight);
         match kind {
@@ -196,16 +241,7 @@ impl Problem {
                     let emitted = fluorescence::cascade(c.element, shell, rng);
                     for &line in &emitted.kev[..emitted.count] {
                         if line >= self.options.cutoff_kev && *depth < STACK_DEPTH {
-                            stack[*depth] = Photon {
-                                pos: p.pos,
-                                dir: isotropic(rng),
-                                kev: line,
-                                weight: p.weight,
-                                region: p.region,
-                                incoherent: 0,
-                                coherent: 0,
-                                fluorescence: true,
-                            };
+                            stack[*depth] = Photon::new(p.pos, isotropic(rng), line, p.weight, p.region, true);
                             *depth += 1;
                             local -= line;
                             ctx.count(counts::FLUORESCENCE, p.weight);
@@ -219,8 +255,8 @@ impl Problem {
                 let (ratio, cos_theta) = compton::sample(p.kev, c.element, self.options.bound_compton, rng);
                 let scattered = p.kev * ratio;
                 ctx.deposit(p.region, p.pos, (p.kev - scattered) * p.weight);
-                p.kev = scattered;
-                p.dir = rotate(p.dir, cos_theta, std::f64::consts::TAU * rng.uniform());
+                p.set_energy(scattered);
+                p.dir = rotate(p.dir, cos_theta, rng.azimuth());
                 p.incoherent = p.incoherent.saturating_add(1);
                 if p.kev < self.options.cutoff_kev {
                     ctx.count(counts::CUTOFF, p.weight);
@@ -232,7 +268,7 @@ impl Problem {
             Interaction::Coherent => {
                 let table = c.rayleigh.as_ref().expect("coherent channel without its table");
                 let cos_theta = table.sample(p.kev, rng);
-                p.dir = rotate(p.dir, cos_theta, std::f64::consts::TAU * rng.uniform());
+                p.dir = rotate(p.dir, cos_theta, rng.azimuth());
                 p.coherent = p.coherent.saturating_add(1);
                 true
             }

@@ -51,11 +51,10 @@ impl Default for PhysicsOptions {
 }
 
 /// The direction obtained by turning unit vector `d` through polar angle θ (given by `cos_theta`)
-/// and azimuth `phi` (radians) about itself. The result is a unit vector.
+/// and azimuth φ (given by `cos_phi`, `sin_phi`) about itself. The result is a unit vector.
 #[inline]
-pub fn rotate(d: Vec3, cos_theta: f64, phi: f64) -> Vec3 {
+pub fn rotate(d: Vec3, cos_theta: f64, (cos_phi, sin_phi): (f64, f64)) -> Vec3 {
     let sin_theta = (1.0 - cos_theta * cos_theta).max(0.0).sqrt();
-    let (sin_phi, cos_phi) = phi.sin_cos();
     let t2 = d.x * d.x + d.y * d.y;
     let out = if t2 < 1e-16 {
         let s = if d.z >= 0.0 { 1.0 } else { -1.0 };
@@ -77,9 +76,9 @@ pub fn rotate(d: Vec3, cos_theta: f64, phi: f64) -> Vec3 {
 #[inline]
 pub fn isotropic(rng: &mut crate::rng::Stream) -> Vec3 {
     let cos_theta = 2.0 * rng.uniform() - 1.0;
-    let phi = std::f64::consts::TAU * rng.uniform();
+    let (cos_phi, sin_phi) = rng.azimuth();
     let sin_theta = (1.0 - cos_theta * cos_theta).max(0.0).sqrt();
-    Vec3 { x: sin_theta * phi.cos(), y: sin_theta * phi.sin(), z: cos_theta }
+    Vec3 { x: sin_theta * cos_phi, y: sin_theta * sin_phi, z: cos_theta }
 }
 
 #[cfg(test)]
@@ -92,8 +91,7 @@ mod tests {
         let mut d = Vec3 { x: 0.0, y: 0.0, z: 1.0 };
         for _ in 0..100_000 {
             let c = 2.0 * rng.uniform() - 1.0;
-            let phi = std::f64::consts::TAU * rng.uniform();
-            let n = rotate(d, c, phi);
+            let n = rotate(d, c, rng.azimuth());
             let len = (n.x * n.x + n.y * n.y + n.z * n.z).sqrt();
             assert!((len - 1.0).abs() < 1e-14);
             let dot = n.x * d.x + n.y * d.y + n.z * d.z;

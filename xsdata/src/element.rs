@@ -191,6 +191,11 @@ impl Interaction {
 }
 
 /// Interaction data of one element.
+///
+/// The lookups (`photo_cm2_g`, `interaction`, …) take energies in keV and never fail: energies
+/// outside 1–800 keV are clamped to the range, so callers validate energies once, up front, with
+/// [`Element::check_energy`] (or use the `try_` variants, which return
+/// [`XsError::EnergyOutOfRange`]). They allocate nothing and do not search: see the module docs.
 #[derive(Debug, Clone)]
 pub struct Element {
     /// Atomic number.
@@ -699,6 +704,18 @@ pub fn embedded_table_bytes() -> &'static [u8] {
 }
 
 /// The embedded element tables (parsed on first use, then shared).
+///
+/// ```
+/// use dosemill_xsdata::{elements, Shell};
+/// let pb = elements().by_symbol("Pb").unwrap();
+/// let at_100_kev = pb.interaction(100.0);
+/// assert!(at_100_kev.total_cm2_g() > 5.0 && at_100_kev.photo_shell_shares[0] > 0.7);
+/// let k_alpha1 = pb.line(Shell::K, "KL3").unwrap();
+/// assert!((k_alpha1.kev - 74.97).abs() < 0.01);
+/// ```
+///
+/// # Panics
+/// Only if the embedded files are damaged (the build's own data; a test parses them).
 pub fn elements() -> &'static ElementTable {
     static TABLE: OnceLock<ElementTable> = OnceLock::new();
     TABLE.get_or_init(|| {

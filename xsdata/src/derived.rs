@@ -202,18 +202,18 @@ const INCOH_PANELS: usize = 24;
 const GL8: [(f64, f64); 8] = [
     (-0.960_289_856_497_536_3, 0.101_228_536_290_376_26),
     (-0.796_666_477_413_626_7, 0.222_381_034_453_374_47),
-    (-0.525_532_409_916_329_0, 0.313_706_645_877_887_3),
-    (-0.183_434_642_495_649_8, 0.362_683_783_378_362_0),
-    (0.183_434_642_495_649_8, 0.362_683_783_378_362_0),
-    (0.525_532_409_916_329_0, 0.313_706_645_877_887_3),
+    (-0.525_532_409_916_329, 0.313_706_645_877_887_3),
+    (-0.183_434_642_495_65, 0.362_683_783_378_362),
+    (0.183_434_642_495_65, 0.362_683_783_378_362),
+    (0.525_532_409_916_329, 0.313_706_645_877_887_3),
     (0.796_666_477_413_626_7, 0.222_381_034_453_374_47),
     (0.960_289_856_497_536_3, 0.101_228_536_290_376_26),
 ];
 
 fn incoherent_transfer_fraction_panels(el: &Element, kev: f64, panels: usize) -> f64 {
-    // Variable t = sin(θ/2) ∈ [0, 1]: cos θ = 1 − 2t², dΩ = 2π·4t dt, x = (E/hc)·t.
-    // Panels are uniform in t² (i.e. in cos θ) near the forward direction would waste points, so
-    // use panels uniform in t, which is uniform in momentum transfer x where S varies.
+    // Variable t = sin(θ/2) ∈ [0, 1]: cos θ = 1 − 2t², dΩ = 2π·4t dt, x = (E/hc)·t. Panels uniform
+    // in t are uniform in momentum transfer x, the variable in which S(x, Z) is tabulated.
+    // The constant 2π·4·r_e²/2 cancels in the ratio.
     let k = kev / ELECTRON_REST_KEV;
     let x_max = kev / HC_KEV_ANGSTROM;
     let mut num = 0.0;

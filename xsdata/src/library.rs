@@ -5,7 +5,7 @@
 //! case-insensitively too (`al`, `AL` → aluminium). An unknown name gives
 //! [`MaterialError::UnknownMaterial`] listing the nearest valid names.
 //!
-//! ```no_run
+//! ```
 //! let water = dosemill_xsdata::library::lookup("water").unwrap();
 //! let al = dosemill_xsdata::library::lookup("Al").unwrap();
 //! assert_eq!(al.density_g_cm3(), 2.699);

@@ -2,7 +2,7 @@
 //! from. Cross sections follow from the element tables by Bragg additivity,
 //! (μ/ρ)_material = Σ_i w_i (μ/ρ)_i.
 //!
-//! ```no_run
+//! ```
 //! use dosemill_xsdata::material::Material;
 //! let water = Material::from_formula("water", "H2O", 1.0, "stoichiometric H2O").unwrap();
 //! let mu = water.mu_per_cm(60.0).unwrap();
@@ -171,17 +171,15 @@ impl Material {
         if sum <= 0.0 {
             return Err(MaterialError::EmptyComposition { material: name.to_string() });
         }
-        let scale = if (sum - 1.0).abs() <= FRACTION_SUM_TOLERANCE {
-            1.0 / sum
-        } else if normalise {
-            1.0 / sum
-        } else {
+        if (sum - 1.0).abs() > FRACTION_SUM_TOLERANCE && !normalise {
             return Err(MaterialError::FractionSum {
                 material: name.to_string(),
                 sum,
                 tolerance: FRACTION_SUM_TOLERANCE,
             });
-        };
+        }
+        // Within tolerance the small residue is removed too, so stored fractions sum to 1.
+        let scale = 1.0 / sum;
         let composition = by_z
             .iter()
             .enumerate()

@@ -119,3 +119,20 @@ fn parts_sum_to_total() {
         assert!((sum - total).abs() < 1e-6 * total, "{kev}: {sum} vs {total}");
     }
 }
+
+#[test]
+fn k_vacancy_fluorescence_energy_matches_xraylib_lines() {
+    // ω_K × Σ rate·E_line / Σ rate over the K lines, from xraylib 4.3.0 (FluorYield, RadRate,
+    // LineEnergy), computed with python3 -c "import xraylib ..." : the K-line part of the mean
+    // fluorescence energy of a K vacancy (keV). Our cascade adds the L fluorescence following a
+    // K line, which is at most ω_K · E(L3 edge) · max(ω_L2, ω_L3).
+    use dosemill_xsdata::derived::VacancyCascade;
+    for (z, k_only) in [(29u32, 3.695327), (53, 25.773369), (74, 57.799046), (82, 73.685797)] {
+        let el = elements().get(z).unwrap();
+        let e_k = VacancyCascade::of(el).kev_per_vacancy[0];
+        let sh = el.shells();
+        let l_max = sh[0].fluorescence_yield * sh[3].edge_kev * sh[2].fluorescence_yield.max(sh[3].fluorescence_yield);
+        assert!(e_k >= k_only * (1.0 - 2e-3) && e_k <= k_only * (1.0 + 2e-3) + l_max,
+            "Z={z}: e_K {e_k} keV, K lines alone {k_only}, L bound {l_max}");
+    }
+}

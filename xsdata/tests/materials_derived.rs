@@ -14,7 +14,8 @@ fn kn_transfer_fraction(kev: f64) -> f64 {
     let sigma = (1.0 + k) / (k * k) * (2.0 * (1.0 + k) / (1.0 + 2.0 * k) - l / k) + l / (2.0 * k)
         - (1.0 + 3.0 * k) / ((1.0 + 2.0 * k) * (1.0 + 2.0 * k));
     let sigma_s = 0.5
-        * (l / (k * k * k) + 2.0 * (1.0 + k) * (2.0 * k * k - 2.0 * k - 1.0) / (k * k * (1.0 + 2.0 * k).powi(2))
+        * (l / (k * k * k)
+            + 2.0 * (1.0 + k) * (2.0 * k * k - 2.0 * k - 1.0) / (k * k * (1.0 + 2.0 * k).powi(2))
             + 8.0 * k * k / (3.0 * (1.0 + 2.0 * k).powi(3)));
     1.0 - sigma_s / sigma
 }
@@ -36,7 +37,10 @@ fn bound_transfer_fraction_tends_to_free_electron_value() {
         for kev in [300.0, 500.0, 800.0] {
             let bound = incoherent_transfer_fraction(el, kev);
             let free = kn_transfer_fraction(kev);
-            assert!((bound - free).abs() / free < tol, "Z={z} {kev} keV: bound {bound} free {free}");
+            assert!(
+                (bound - free).abs() / free < tol,
+                "Z={z} {kev} keV: bound {bound} free {free}"
+            );
         }
     }
     // Binding suppresses forward (low-transfer) scattering: at low energy the bound mean transfer
@@ -63,9 +67,19 @@ fn cached_fraction_matches_direct() {
 fn cached_table_matches_direct_computation() {
     // The fast path must agree with the direct computation within 0.05 % (stated in the docs),
     // including just below and above absorption edges.
-    for name in ["water", "air", "cortical_bone", "lead", "csi", "gd2o2s", "breast_glandular"] {
+    for name in [
+        "water",
+        "air",
+        "cortical_bone",
+        "lead",
+        "csi",
+        "gd2o2s",
+        "breast_glandular",
+    ] {
         let m = library::lookup(name).unwrap();
-        let mut energies: Vec<f64> = (0..200).map(|i| 1.0 * (800.0f64).powf((i as f64 + 0.5) / 200.0)).collect();
+        let mut energies: Vec<f64> = (0..200)
+            .map(|i| 1.0 * (800.0f64).powf((i as f64 + 0.5) / 200.0))
+            .collect();
         for &(z, _) in m.composition() {
             for &e in elements().get(z).unwrap().edges_kev() {
                 if e > 1.001 && e < 799.0 {
@@ -80,8 +94,12 @@ fn cached_table_matches_direct_computation() {
             let fast_tr = m.mutr_rho_cm2_g(kev).unwrap();
             let d_en = (fast_en - direct.muen_rho_cm2_g).abs() / direct.muen_rho_cm2_g;
             let d_tr = (fast_tr - direct.mutr_rho_cm2_g).abs() / direct.mutr_rho_cm2_g;
-            assert!(d_en < 5e-4 && d_tr < 5e-4, "{name} {kev} keV: μen {fast_en} vs {} ; μtr {fast_tr} vs {}",
-                direct.muen_rho_cm2_g, direct.mutr_rho_cm2_g);
+            assert!(
+                d_en < 5e-4 && d_tr < 5e-4,
+                "{name} {kev} keV: μen {fast_en} vs {} ; μtr {fast_tr} vs {}",
+                direct.muen_rho_cm2_g,
+                direct.mutr_rho_cm2_g
+            );
         }
     }
 }
@@ -114,9 +132,14 @@ fn iodine_solution_attenuates_more_above_the_k_edge() {
 fn parts_sum_to_total() {
     let m = library::lookup("muscle").unwrap();
     for kev in [10.0, 50.0, 300.0] {
-        let sum = m.photo_cm2_g(kev).unwrap() + m.coherent_cm2_g(kev).unwrap() + m.incoherent_cm2_g(kev).unwrap();
+        let sum = m.photo_cm2_g(kev).unwrap()
+            + m.coherent_cm2_g(kev).unwrap()
+            + m.incoherent_cm2_g(kev).unwrap();
         let total = m.mu_rho_cm2_g(kev).unwrap();
-        assert!((sum - total).abs() < 1e-6 * total, "{kev}: {sum} vs {total}");
+        assert!(
+            (sum - total).abs() < 1e-6 * total,
+            "{kev}: {sum} vs {total}"
+        );
     }
 }
 
@@ -127,12 +150,45 @@ fn k_vacancy_fluorescence_energy_matches_xraylib_lines() {
     // fluorescence energy of a K vacancy (keV). Our cascade adds the L fluorescence following a
     // K line, which is at most ω_K · E(L3 edge) · max(ω_L2, ω_L3).
     use dosemill_xsdata::derived::VacancyCascade;
-    for (z, k_only) in [(29u32, 3.695327), (53, 25.773369), (74, 57.799046), (82, 73.685797)] {
+    for (z, k_only) in [
+        (29u32, 3.695327),
+        (53, 25.773369),
+        (74, 57.799046),
+        (82, 73.685797),
+    ] {
         let el = elements().get(z).unwrap();
         let e_k = VacancyCascade::of(el).kev_per_vacancy[0];
         let sh = el.shells();
-        let l_max = sh[0].fluorescence_yield * sh[3].edge_kev * sh[2].fluorescence_yield.max(sh[3].fluorescence_yield);
-        assert!(e_k >= k_only * (1.0 - 2e-3) && e_k <= k_only * (1.0 + 2e-3) + l_max,
-            "Z={z}: e_K {e_k} keV, K lines alone {k_only}, L bound {l_max}");
+        let l_max = sh[0].fluorescence_yield
+            * sh[3].edge_kev
+            * sh[2].fluorescence_yield.max(sh[3].fluorescence_yield);
+        assert!(
+            e_k >= k_only * (1.0 - 2e-3) && e_k <= k_only * (1.0 + 2e-3) + l_max,
+            "Z={z}: e_K {e_k} keV, K lines alone {k_only}, L bound {l_max}"
+        );
     }
+}
+
+#[test]
+fn radiative_fraction_is_as_documented() {
+    // Size of g = 1 − μen/μtr stated in the derived-module docs (textbook radiation-yield estimate).
+    let g = |name: &str, kev: f64| {
+        let c = coefficients(&library::lookup(name).unwrap(), kev).unwrap();
+        1.0 - c.muen_rho_cm2_g / c.mutr_rho_cm2_g
+    };
+    for name in ["water", "air", "aluminium"] {
+        for kev in [20.0, 100.0, 300.0] {
+            assert!(g(name, kev) < 1e-3, "{name} {kev}: g = {}", g(name, kev));
+        }
+    }
+    assert!(
+        (1e-3..4e-3).contains(&g("lead", 100.0)),
+        "{}",
+        g("lead", 100.0)
+    );
+    assert!(
+        (4e-3..1e-2).contains(&g("lead", 200.0)),
+        "{}",
+        g("lead", 200.0)
+    );
 }

@@ -9,6 +9,7 @@ use dosemill_xsdata::{coefficients, elements, library};
 const KEV: [f64; 9] = [20.0, 30.0, 40.0, 50.0, 60.0, 80.0, 100.0, 150.0, 200.0];
 
 /// μ/ρ (cm²/g), NIST SRD 126 (from memory); NaN = not listed.
+#[rustfmt::skip]
 const MU_RHO: [(&str, [f64; 9]); 5] = [
     ("water", [0.8096, 0.3756, 0.2683, 0.2269, 0.2059, 0.1837, 0.1707, 0.1505, 0.1370]),
     ("air", [0.7779, 0.3538, 0.2485, 0.2080, 0.1875, 0.1662, 0.1541, 0.1356, 0.1233]),
@@ -18,6 +19,7 @@ const MU_RHO: [(&str, [f64; 9]); 5] = [
 ];
 
 /// μen/ρ (cm²/g), NIST SRD 126 (from memory); NaN = not listed.
+#[rustfmt::skip]
 const MUEN_RHO: [(&str, [f64; 9]); 3] = [
     ("water", [0.5503, 0.1557, 0.06947, 0.04223, 0.03190, 0.02597, 0.02546, 0.02764, 0.02967]),
     ("air", [0.5389, 0.1537, 0.06833, 0.04098, 0.03041, 0.02407, 0.02325, 0.02496, 0.02672]),
@@ -31,7 +33,10 @@ fn dev(ours: f64, nist: f64) -> f64 {
 #[test]
 fn mu_rho_within_1_percent_of_nist() {
     let mut failures = Vec::new();
-    eprintln!("{:<10} {:>6} {:>10} {:>10} {:>8}", "material", "keV", "ours", "NIST", "dev %");
+    eprintln!(
+        "{:<10} {:>6} {:>10} {:>10} {:>8}",
+        "material", "keV", "ours", "NIST", "dev %"
+    );
     for (name, values) in MU_RHO {
         let m = library::lookup(name).unwrap();
         for (kev, nist) in KEV.iter().zip(values) {
@@ -40,9 +45,15 @@ fn mu_rho_within_1_percent_of_nist() {
             }
             let ours = m.mu_rho_cm2_g(*kev).unwrap();
             let d = dev(ours, nist);
-            eprintln!("{name:<10} {kev:>6} {ours:>10.5} {nist:>10.5} {:>8.3}", d * 100.0);
+            eprintln!(
+                "{name:<10} {kev:>6} {ours:>10.5} {nist:>10.5} {:>8.3}",
+                d * 100.0
+            );
             if d.abs() > 0.01 {
-                failures.push(format!("{name} {kev} keV: {ours} vs {nist} ({:.2} %)", d * 100.0));
+                failures.push(format!(
+                    "{name} {kev} keV: {ours} vs {nist} ({:.2} %)",
+                    d * 100.0
+                ));
             }
         }
     }
@@ -52,7 +63,10 @@ fn mu_rho_within_1_percent_of_nist() {
 #[test]
 fn muen_rho_within_2_percent_of_nist() {
     let mut failures = Vec::new();
-    eprintln!("{:<10} {:>6} {:>10} {:>10} {:>8} {:>10} {:>8}", "material", "keV", "direct", "NIST", "dev %", "table", "dev %");
+    eprintln!(
+        "{:<10} {:>6} {:>10} {:>10} {:>8} {:>10} {:>8}",
+        "material", "keV", "direct", "NIST", "dev %", "table", "dev %"
+    );
     for (name, values) in MUEN_RHO {
         let m = library::lookup(name).unwrap();
         for (kev, nist) in KEV.iter().zip(values) {
@@ -62,10 +76,17 @@ fn muen_rho_within_2_percent_of_nist() {
             let direct = coefficients(&m, *kev).unwrap().muen_rho_cm2_g;
             let fast = m.muen_rho_cm2_g(*kev).unwrap();
             let (d1, d2) = (dev(direct, nist), dev(fast, nist));
-            eprintln!("{name:<10} {kev:>6} {direct:>10.5} {nist:>10.5} {:>8.3} {fast:>10.5} {:>8.3}", d1 * 100.0, d2 * 100.0);
+            eprintln!(
+                "{name:<10} {kev:>6} {direct:>10.5} {nist:>10.5} {:>8.3} {fast:>10.5} {:>8.3}",
+                d1 * 100.0,
+                d2 * 100.0
+            );
             for (what, d, v) in [("direct", d1, direct), ("table", d2, fast)] {
                 if d.abs() > 0.02 {
-                    failures.push(format!("{name} {kev} keV ({what}): {v} vs {nist} ({:.2} %)", d * 100.0));
+                    failures.push(format!(
+                        "{name} {kev} keV ({what}): {v} vs {nist} ({:.2} %)",
+                        d * 100.0
+                    ));
                 }
             }
         }
@@ -84,15 +105,24 @@ fn lead_k_edge_within_1_5_percent() {
         .copied()
         .min_by(|a, b| (a - 88.0045).abs().total_cmp(&(b - 88.0045).abs()))
         .unwrap();
-    assert!((edge - 88.0045).abs() < 0.05, "Pb K edge in the tables at {edge} keV");
+    assert!(
+        (edge - 88.0045).abs() < 0.05,
+        "Pb K edge in the tables at {edge} keV"
+    );
     let below = pb.mu_rho_cm2_g(edge * (1.0 - 1e-6)).unwrap();
     let above = pb.mu_rho_cm2_g(edge).unwrap();
     let above2 = pb.mu_rho_cm2_g(edge * (1.0 + 1e-6)).unwrap();
-    eprintln!("Pb K edge {edge} keV: below {below:.4} ({:.3} %), above {above:.4} ({:.3} %)",
-        dev(below, 1.910) * 100.0, dev(above, 7.683) * 100.0);
+    eprintln!(
+        "Pb K edge {edge} keV: below {below:.4} ({:.3} %), above {above:.4} ({:.3} %)",
+        dev(below, 1.910) * 100.0,
+        dev(above, 7.683) * 100.0
+    );
     assert!(dev(below, 1.910).abs() <= 0.015, "below edge {below}");
     assert!(dev(above, 7.683).abs() <= 0.015, "above edge {above}");
-    assert!((above2 - above).abs() / above < 1e-4, "value at the edge is the above-edge value");
+    assert!(
+        (above2 - above).abs() / above < 1e-4,
+        "value at the edge is the above-edge value"
+    );
 }
 
 #[test]

@@ -71,7 +71,12 @@ pub fn run(args: Args) -> anyhow::Result<i32> {
         serde_json::to_writer(&mut out, &rows)?;
         writeln!(out)?;
     } else {
-        writeln!(out, "material {}  density {} g/cm3", mat.name(), mat.density_g_cm3())?;
+        writeln!(
+            out,
+            "material {}  density {} g/cm3",
+            mat.name(),
+            mat.density_g_cm3()
+        )?;
         writeln!(out, "composition source: {}", mat.source())?;
         writeln!(
             out,
@@ -87,7 +92,13 @@ pub fn run(args: Args) -> anyhow::Result<i32> {
             writeln!(
                 out,
                 "{:>9.3}  {:>12.5e}  {:>12.5e}  {:>12.5e}  {:>12.5e}  {:>12.5e}  {:>12.5e}",
-                c.kev, c.mu_rho_cm2_g, c.mu_rho_no_coherent_cm2_g, c.muen_rho_cm2_g, c.mu_per_cm, c.hvl_cm, c.tvl_cm
+                c.kev,
+                c.mu_rho_cm2_g,
+                c.mu_rho_no_coherent_cm2_g,
+                c.muen_rho_cm2_g,
+                c.mu_per_cm,
+                c.hvl_cm,
+                c.tvl_cm
             )?;
         }
     }

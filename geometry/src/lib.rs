@@ -29,6 +29,7 @@ mod region;
 mod slab;
 mod vec3;
 mod voxel;
+pub mod voxel_file;
 
 pub use error::GeometryError;
 pub use geometry::Geometry;

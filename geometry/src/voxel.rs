@@ -175,7 +175,7 @@ pub struct VoxelSegment {
 }
 
 /// A voxel grid inside a world box.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug)]
 pub struct VoxelGrid {
     layout: GridLayout,
     material: MaterialIndices,
@@ -189,6 +189,23 @@ pub struct VoxelGrid {
     /// Leaving through each grid face (-x, +x, -y, +y, -z, +z) leaves the world at once.
     face_escapes: [bool; 6],
     skin_cm: f64,
+}
+
+impl PartialEq for VoxelGrid {
+    /// Equal contents and world; unsupplied nominal densities (NaN) compare equal.
+    fn eq(&self, o: &Self) -> bool {
+        self.layout == o.layout
+            && self.material == o.material
+            && self.density == o.density
+            && self.material_names == o.material_names
+            && self.world == o.world
+            && self.nominal_density_g_cm3.len() == o.nominal_density_g_cm3.len()
+            && self
+                .nominal_density_g_cm3
+                .iter()
+                .zip(&o.nominal_density_g_cm3)
+                .all(|(a, b)| a.to_bits() == b.to_bits())
+    }
 }
 
 impl VoxelGrid {

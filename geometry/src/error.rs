@@ -58,4 +58,54 @@ pub enum GeometryError {
         /// The world box given.
         world: Aabb,
     },
+    /// A voxel grid with a zero dimension.
+    #[error("grid dimensions {dims:?} must all be at least 1")]
+    BadDimensions {
+        /// The dimensions given (nx, ny, nz).
+        dims: [usize; 3],
+    },
+    /// A data array whose length does not match the grid.
+    #[error("{what}: expected {expected} values, found {actual}")]
+    DataLength {
+        /// Which array.
+        what: &'static str,
+        /// Number expected.
+        expected: usize,
+        /// Number found.
+        actual: usize,
+    },
+    /// A voxel whose material index is not in the material table.
+    #[error("voxel ({ix}, {iy}, {iz}): material index {value} is out of range; the material table has {count} entries (indices 0–{})", count.saturating_sub(1))]
+    MaterialOutOfRange {
+        /// Voxel x index.
+        ix: usize,
+        /// Voxel y index.
+        iy: usize,
+        /// Voxel z index.
+        iz: usize,
+        /// The index found.
+        value: u16,
+        /// Number of materials in the table.
+        count: usize,
+    },
+    /// A voxel whose density is negative or not finite.
+    #[error("voxel ({ix}, {iy}, {iz}): density {value} g/cm³ must be finite and ≥ 0")]
+    BadVoxelDensity {
+        /// Voxel x index.
+        ix: usize,
+        /// Voxel y index.
+        iy: usize,
+        /// Voxel z index.
+        iz: usize,
+        /// The density found (g/cm³).
+        value: f32,
+    },
+    /// A nominal material density that is negative or not finite.
+    #[error("material `{material}`: nominal density {value} g/cm³ must be finite and ≥ 0")]
+    BadNominalDensity {
+        /// Material name.
+        material: String,
+        /// The value given (g/cm³).
+        value: f64,
+    },
 }

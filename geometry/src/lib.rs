@@ -24,11 +24,16 @@
 #![deny(missing_docs)]
 
 mod error;
+mod geometry;
 mod region;
 mod slab;
 mod vec3;
+mod voxel;
+pub mod voxel_file;
 
 pub use error::GeometryError;
+pub use geometry::Geometry;
 pub use region::{Aabb, Axis, Boundary, Chord, Medium, Region, World};
 pub use slab::{Lateral, Layer, SlabStack};
 pub use vec3::Vec3;
+pub use voxel::{GridLayout, MaterialIndices, VoxelGrid, VoxelSegment, VoxelWalk};

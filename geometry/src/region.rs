@@ -146,7 +146,10 @@ impl Aabb {
 
     /// The box centred on `center` with half-widths `half`.
     pub fn centered(center: Vec3, half: Vec3) -> Self {
-        Aabb { min_cm: center - half, max_cm: center + half }
+        Aabb {
+            min_cm: center - half,
+            max_cm: center + half,
+        }
     }
 
     /// True when every corner coordinate is finite and min ≤ max on every axis.
@@ -184,7 +187,9 @@ impl Aabb {
     pub fn scale_cm(&self) -> f64 {
         let a = self.min_cm;
         let b = self.max_cm;
-        [a.x, a.y, a.z, b.x, b.y, b.z].iter().fold(0.0f64, |m, v| m.max(v.abs()))
+        [a.x, a.y, a.z, b.x, b.y, b.z]
+            .iter()
+            .fold(0.0f64, |m, v| m.max(v.abs()))
     }
 
     /// Distance (cm, ≥ 0) from `p`, taken to be inside, to the box surface along unit `d`,
@@ -250,7 +255,12 @@ impl Aabb {
             }
         }
         if t0 <= t1 {
-            Some(Chord { enter_cm: t0, exit_cm: t1, enter_axis: a0, exit_axis: a1 })
+            Some(Chord {
+                enter_cm: t0,
+                exit_cm: t1,
+                enter_axis: a0,
+                exit_axis: a1,
+            })
         } else {
             None
         }
@@ -269,7 +279,10 @@ pub struct Medium {
 impl Medium {
     /// A medium of material `material` at density `density_g_cm3`.
     pub const fn new(material: u16, density_g_cm3: f64) -> Self {
-        Medium { material, density_g_cm3 }
+        Medium {
+            material,
+            density_g_cm3,
+        }
     }
 
     /// The `(material, density)` pair returned by the `material_of` queries.

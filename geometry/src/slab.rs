@@ -77,53 +77,83 @@ impl SlabStack {
             return Err(GeometryError::NoLayers);
         }
         if layers.len() as u64 >= Region::MAX_OBJECT_REGIONS {
-            return Err(GeometryError::TooManyRegions { count: layers.len() as u64 });
+            return Err(GeometryError::TooManyRegions {
+                count: layers.len() as u64,
+            });
         }
         if !z0_cm.is_finite() {
-            return Err(GeometryError::NonFinite { what: "z0_cm", value: z0_cm });
+            return Err(GeometryError::NonFinite {
+                what: "z0_cm",
+                value: z0_cm,
+            });
         }
         let mut z_cm = Vec::with_capacity(layers.len() + 1);
         z_cm.push(z0_cm);
         let mut z = z0_cm;
         for (i, l) in layers.iter().enumerate() {
             if !(l.thickness_cm.is_finite() && l.thickness_cm > 0.0) {
-                return Err(GeometryError::BadThickness { layer: i, value: l.thickness_cm });
+                return Err(GeometryError::BadThickness {
+                    layer: i,
+                    value: l.thickness_cm,
+                });
             }
             if !(l.density_g_cm3.is_finite() && l.density_g_cm3 >= 0.0) {
-                return Err(GeometryError::BadLayerDensity { layer: i, value: l.density_g_cm3 });
+                return Err(GeometryError::BadLayerDensity {
+                    layer: i,
+                    value: l.density_g_cm3,
+                });
             }
             let next = z + l.thickness_cm;
             if next <= z {
                 // Thickness below the rounding of z: the plane would not move.
-                return Err(GeometryError::BadThickness { layer: i, value: l.thickness_cm });
+                return Err(GeometryError::BadThickness {
+                    layer: i,
+                    value: l.thickness_cm,
+                });
             }
             z = next;
             z_cm.push(z);
         }
         if !world.bounds.is_valid() {
-            return Err(GeometryError::BadWorldBox { bounds: world.bounds });
+            return Err(GeometryError::BadWorldBox {
+                bounds: world.bounds,
+            });
         }
         if let Some(m) = world.medium {
             if !(m.density_g_cm3.is_finite() && m.density_g_cm3 >= 0.0) {
-                return Err(GeometryError::BadWorldDensity { value: m.density_g_cm3 });
+                return Err(GeometryError::BadWorldDensity {
+                    value: m.density_g_cm3,
+                });
             }
         }
         let wb = world.bounds;
         let (x_lo, x_hi, y_lo, y_hi) = match lateral {
             Lateral::Infinite => (wb.min_cm.x, wb.max_cm.x, wb.min_cm.y, wb.max_cm.y),
-            Lateral::Box { half_x_cm, half_y_cm } => {
+            Lateral::Box {
+                half_x_cm,
+                half_y_cm,
+            } => {
                 if !(half_x_cm.is_finite() && half_x_cm > 0.0) {
-                    return Err(GeometryError::NonFinite { what: "half_x_cm", value: half_x_cm });
+                    return Err(GeometryError::NonFinite {
+                        what: "half_x_cm",
+                        value: half_x_cm,
+                    });
                 }
                 if !(half_y_cm.is_finite() && half_y_cm > 0.0) {
-                    return Err(GeometryError::NonFinite { what: "half_y_cm", value: half_y_cm });
+                    return Err(GeometryError::NonFinite {
+                        what: "half_y_cm",
+                        value: half_y_cm,
+                    });
                 }
                 (-half_x_cm, half_x_cm, -half_y_cm, half_y_cm)
             }
         };
         let block = Aabb::new(Vec3::new(x_lo, y_lo, z0_cm), Vec3::new(x_hi, y_hi, z));
         if !wb.contains_box(&block) || !(x_lo < x_hi && y_lo < y_hi) {
-            return Err(GeometryError::WorldTooSmall { object: block, world: wb });
+            return Err(GeometryError::WorldTooSmall {
+                object: block,
+                world: wb,
+            });
         }
         let lateral_escapes = [
             x_lo == wb.min_cm.x,
@@ -160,18 +190,32 @@ impl SlabStack {
         lateral_half_cm: (f64, f64),
     ) -> Result<Self, GeometryError> {
         if !(margin_cm.is_finite() && margin_cm >= 0.0) {
-            return Err(GeometryError::NonFinite { what: "margin_cm", value: margin_cm });
+            return Err(GeometryError::NonFinite {
+                what: "margin_cm",
+                value: margin_cm,
+            });
         }
         let total: f64 = layers.iter().map(|l| l.thickness_cm).sum();
         let (hx, hy) = match lateral {
             Lateral::Infinite => lateral_half_cm,
-            Lateral::Box { half_x_cm, half_y_cm } => (half_x_cm + margin_cm, half_y_cm + margin_cm),
+            Lateral::Box {
+                half_x_cm,
+                half_y_cm,
+            } => (half_x_cm + margin_cm, half_y_cm + margin_cm),
         };
         let bounds = Aabb::new(
             Vec3::new(-hx, -hy, z0_cm - margin_cm),
             Vec3::new(hx, hy, z0_cm + total + margin_cm),
         );
-        SlabStack::new(z0_cm, layers, lateral, World { medium: world_medium, bounds })
+        SlabStack::new(
+            z0_cm,
+            layers,
+            lateral,
+            World {
+                medium: world_medium,
+                bounds,
+            },
+        )
     }
 
     /// Number of layers.
@@ -282,7 +326,12 @@ impl SlabStack {
         match r.index() {
             Some(i) => self.step_layer(i, p, d),
             None if r == Region::WORLD => self.step_world(p, d),
-            None => Boundary { distance_cm: 0.0, next: Region::ESCAPED, axis: Axis::None, plane_cm: 0.0 },
+            None => Boundary {
+                distance_cm: 0.0,
+                next: Region::ESCAPED,
+                axis: Axis::None,
+                plane_cm: 0.0,
+            },
         }
     }
 
@@ -296,7 +345,13 @@ impl SlabStack {
             axis: Axis::None,
             plane_cm: 0.0,
         };
-        let lateral_next = |escapes: bool| if escapes { Region::ESCAPED } else { Region::WORLD };
+        let lateral_next = |escapes: bool| {
+            if escapes {
+                Region::ESCAPED
+            } else {
+                Region::WORLD
+            }
+        };
         // Lateral planes first: on ties (edges) the lateral exit wins.
         if d.x != 0.0 {
             let (pl, esc) = if d.x > 0.0 {
@@ -306,7 +361,12 @@ impl SlabStack {
             };
             let t = (pl - p.x) / d.x;
             if t < best.distance_cm {
-                best = Boundary { distance_cm: t, next: lateral_next(esc), axis: Axis::X, plane_cm: pl };
+                best = Boundary {
+                    distance_cm: t,
+                    next: lateral_next(esc),
+                    axis: Axis::X,
+                    plane_cm: pl,
+                };
             }
         }
         if d.y != 0.0 {
@@ -317,7 +377,12 @@ impl SlabStack {
             };
             let t = (pl - p.y) / d.y;
             if t < best.distance_cm {
-                best = Boundary { distance_cm: t, next: lateral_next(esc), axis: Axis::Y, plane_cm: pl };
+                best = Boundary {
+                    distance_cm: t,
+                    next: lateral_next(esc),
+                    axis: Axis::Y,
+                    plane_cm: pl,
+                };
             }
         }
         if d.z != 0.0 {
@@ -342,7 +407,12 @@ impl SlabStack {
             };
             let t = (pl - p.z) / d.z;
             if t < best.distance_cm {
-                best = Boundary { distance_cm: t, next, axis: Axis::Z, plane_cm: pl };
+                best = Boundary {
+                    distance_cm: t,
+                    next,
+                    axis: Axis::Z,
+                    plane_cm: pl,
+                };
             }
         }
         // A rounding error may put p a hair past the plane: never step backwards.
@@ -381,10 +451,20 @@ impl SlabStack {
                 } else {
                     (Axis::None, 0.0)
                 };
-                return Boundary { distance_cm: t_in, next: Region::object(layer), axis, plane_cm };
+                return Boundary {
+                    distance_cm: t_in,
+                    next: Region::object(layer),
+                    axis,
+                    plane_cm,
+                };
             }
         }
-        Boundary { distance_cm: t_out, next: Region::ESCAPED, axis: axis_out, plane_cm: plane_out }
+        Boundary {
+            distance_cm: t_out,
+            next: Region::ESCAPED,
+            axis: axis_out,
+            plane_cm: plane_out,
+        }
     }
 }
 
@@ -394,11 +474,26 @@ mod tests {
 
     fn water_al_stack(lateral: Lateral, margin: f64) -> SlabStack {
         let layers = vec![
-            Layer { material: 0, density_g_cm3: 1.0, thickness_cm: 2.0 },
-            Layer { material: 1, density_g_cm3: 2.699, thickness_cm: 0.5 },
+            Layer {
+                material: 0,
+                density_g_cm3: 1.0,
+                thickness_cm: 2.0,
+            },
+            Layer {
+                material: 1,
+                density_g_cm3: 2.699,
+                thickness_cm: 0.5,
+            },
         ];
-        SlabStack::with_margin(1.0, layers, lateral, Some(Medium::new(7, 0.0012)), margin, (10.0, 10.0))
-            .unwrap()
+        SlabStack::with_margin(
+            1.0,
+            layers,
+            lateral,
+            Some(Medium::new(7, 0.0012)),
+            margin,
+            (10.0, 10.0),
+        )
+        .unwrap()
     }
 
     #[test]
@@ -426,7 +521,10 @@ mod tests {
             p = b.landing(p, d);
             r = b.next;
         }
-        assert_eq!(seen, vec![Region::WORLD, Region(0), Region(1), Region::WORLD]);
+        assert_eq!(
+            seen,
+            vec![Region::WORLD, Region(0), Region(1), Region::WORLD]
+        );
         assert_eq!(lengths, vec![1.0, 2.0, 0.5, 1.0]);
         assert_eq!(s.material_of(Region(1)), Some((1, 2.699)));
         assert_eq!(s.material_of(Region::WORLD), Some((7, 0.0012)));
@@ -442,20 +540,33 @@ mod tests {
         for r in [Region(0), Region(1)] {
             let b = s.step(p, Vec3::X, r);
             assert_eq!(b.distance_cm, 10.0);
-            assert_eq!(b.next, Region::ESCAPED, "infinite slabs end at the world's side");
+            assert_eq!(
+                b.next,
+                Region::ESCAPED,
+                "infinite slabs end at the world's side"
+            );
         }
     }
 
     #[test]
     fn bounded_slab_lateral_exit_goes_to_world() {
-        let s = water_al_stack(Lateral::Box { half_x_cm: 2.0, half_y_cm: 3.0 }, 1.0);
+        let s = water_al_stack(
+            Lateral::Box {
+                half_x_cm: 2.0,
+                half_y_cm: 3.0,
+            },
+            1.0,
+        );
         let b = s.step(Vec3::new(0.0, 0.0, 2.0), Vec3::X, Region(0));
         assert_eq!((b.distance_cm, b.next), (2.0, Region::WORLD));
         let b2 = s.step(Vec3::new(2.0, 0.0, 2.0), Vec3::X, Region::WORLD);
         assert_eq!((b2.distance_cm, b2.next), (1.0, Region::ESCAPED));
         // From the world, aimed back at the side face: enters layer 0 through x = +2.
         let b3 = s.step(Vec3::new(2.5, 0.0, 2.0), -Vec3::X, Region::WORLD);
-        assert_eq!((b3.distance_cm, b3.next, b3.axis, b3.plane_cm), (0.5, Region(0), Axis::X, 2.0));
+        assert_eq!(
+            (b3.distance_cm, b3.next, b3.axis, b3.plane_cm),
+            (0.5, Region(0), Axis::X, 2.0)
+        );
         // Lateral entry exactly at the inner plane moving down belongs to the layer below.
         let d = Vec3::new(-1.0, 0.0, -1.0).normalised();
         let b4 = s.step(Vec3::new(2.5, 0.0, 3.5), d, Region::WORLD);
@@ -467,20 +578,47 @@ mod tests {
         let s = water_al_stack(Lateral::Infinite, 0.0);
         let b = s.step(Vec3::new(0.0, 0.0, 1.5), -Vec3::Z, Region(0));
         assert_eq!((b.distance_cm, b.next), (0.5, Region::ESCAPED));
-        assert_eq!(s.locate(Vec3::new(0.0, 0.0, 3.5)), Region::WORLD, "back face: closed world");
+        assert_eq!(
+            s.locate(Vec3::new(0.0, 0.0, 3.5)),
+            Region::WORLD,
+            "back face: closed world"
+        );
         assert_eq!(s.locate(Vec3::new(0.0, 0.0, 3.6)), Region::ESCAPED);
     }
 
     #[test]
     fn bad_input_is_a_typed_error() {
-        let bad = vec![Layer { material: 0, density_g_cm3: 1.0, thickness_cm: 0.0 }];
-        let e = SlabStack::with_margin(0.0, bad, Lateral::Infinite, None, 1.0, (5.0, 5.0)).unwrap_err();
-        assert_eq!(e, GeometryError::BadThickness { layer: 0, value: 0.0 });
-        let bad = vec![Layer { material: 0, density_g_cm3: -1.0, thickness_cm: 1.0 }];
-        let e = SlabStack::with_margin(0.0, bad, Lateral::Infinite, None, 1.0, (5.0, 5.0)).unwrap_err();
+        let bad = vec![Layer {
+            material: 0,
+            density_g_cm3: 1.0,
+            thickness_cm: 0.0,
+        }];
+        let e =
+            SlabStack::with_margin(0.0, bad, Lateral::Infinite, None, 1.0, (5.0, 5.0)).unwrap_err();
+        assert_eq!(
+            e,
+            GeometryError::BadThickness {
+                layer: 0,
+                value: 0.0
+            }
+        );
+        let bad = vec![Layer {
+            material: 0,
+            density_g_cm3: -1.0,
+            thickness_cm: 1.0,
+        }];
+        let e =
+            SlabStack::with_margin(0.0, bad, Lateral::Infinite, None, 1.0, (5.0, 5.0)).unwrap_err();
         assert!(matches!(e, GeometryError::BadLayerDensity { layer: 0, .. }));
-        let ok = vec![Layer { material: 0, density_g_cm3: 1.0, thickness_cm: 1.0 }];
-        let w = World { medium: None, bounds: Aabb::new(Vec3::new(-1.0, -1.0, 0.0), Vec3::new(1.0, 1.0, 0.5)) };
+        let ok = vec![Layer {
+            material: 0,
+            density_g_cm3: 1.0,
+            thickness_cm: 1.0,
+        }];
+        let w = World {
+            medium: None,
+            bounds: Aabb::new(Vec3::new(-1.0, -1.0, 0.0), Vec3::new(1.0, 1.0, 0.5)),
+        };
         let e = SlabStack::new(0.0, ok, Lateral::Infinite, w).unwrap_err();
         assert!(matches!(e, GeometryError::WorldTooSmall { .. }));
         assert!(e.to_string().contains("world box"));

@@ -30,7 +30,10 @@ fn case() -> impl Strategy<Value = Case> {
         -20.0f64..20.0,
         prop::collection::vec(prop_oneof![0.001f64..0.01, 0.01f64..10.0], 1..7),
         prop::option::of((0.5f64..20.0, 0.5f64..20.0)),
-        (prop_oneof![Just(0.0), 0.0f64..5.0], prop_oneof![Just(0.0), 0.0f64..5.0]),
+        (
+            prop_oneof![Just(0.0), 0.0f64..5.0],
+            prop_oneof![Just(0.0), 0.0f64..5.0],
+        ),
         prop_oneof![Just(0.0), 0.0f64..5.0],
         (0.5f64..30.0, 0.5f64..30.0),
         (0.0f64..=1.0, 0.0f64..=1.0, 0.0f64..=1.0),
@@ -41,7 +44,20 @@ fn case() -> impl Strategy<Value = Case> {
         0usize..6,
     )
         .prop_map(
-            |(z0, thick, lateral, margin_z, margin_xy, world_half_xy, u, start_kind, plane_pick, dir, dir_kind, axis_pick)| Case {
+            |(
+                z0,
+                thick,
+                lateral,
+                margin_z,
+                margin_xy,
+                world_half_xy,
+                u,
+                start_kind,
+                plane_pick,
+                dir,
+                dir_kind,
+                axis_pick,
+            )| Case {
                 z0,
                 thick,
                 lateral,
@@ -63,18 +79,38 @@ fn build(c: &Case) -> SlabStack {
         .thick
         .iter()
         .enumerate()
-        .map(|(i, &t)| Layer { material: i as u16, density_g_cm3: 1.0 + i as f64, thickness_cm: t })
+        .map(|(i, &t)| Layer {
+            material: i as u16,
+            density_g_cm3: 1.0 + i as f64,
+            thickness_cm: t,
+        })
         .collect();
     let total: f64 = c.thick.iter().sum();
     let (lateral, hx, hy) = match c.lateral {
         None => (Lateral::Infinite, c.world_half_xy.0, c.world_half_xy.1),
-        Some((a, b)) => (Lateral::Box { half_x_cm: a, half_y_cm: b }, a + c.margin_xy, b + c.margin_xy),
+        Some((a, b)) => (
+            Lateral::Box {
+                half_x_cm: a,
+                half_y_cm: b,
+            },
+            a + c.margin_xy,
+            b + c.margin_xy,
+        ),
     };
     let bounds = Aabb::new(
         Vec3::new(-hx, -hy, c.z0 - c.margin_z.0),
         Vec3::new(hx, hy, c.z0 + total + c.margin_z.1 + 1e-9 * total),
     );
-    SlabStack::new(c.z0, layers, lateral, World { medium: Some(Medium::new(99, 0.0012)), bounds }).unwrap()
+    SlabStack::new(
+        c.z0,
+        layers,
+        lateral,
+        World {
+            medium: Some(Medium::new(99, 0.0012)),
+            bounds,
+        },
+    )
+    .unwrap()
 }
 
 fn start_point(c: &Case, s: &SlabStack) -> Vec3 {
@@ -92,7 +128,11 @@ fn start_point(c: &Case, s: &SlabStack) -> Vec3 {
         }
         2 => {
             let b = s.block();
-            p.x = if c.plane_pick % 2 == 0 { b.max_cm.x } else { b.min_cm.x };
+            p.x = if c.plane_pick % 2 == 0 {
+                b.max_cm.x
+            } else {
+                b.min_cm.x
+            };
             p.z = lerp(b.min_cm.z, b.max_cm.z, c.u.2);
         }
         _ => {}
@@ -108,7 +148,9 @@ fn direction(c: &Case) -> Vec3 {
     match c.dir_kind {
         1 => Vec3::new(phi.cos(), phi.sin(), 0.0),
         2 => axes[c.axis_pick],
-        3 => Vec3::new(0.0, st * phi.sin(), mu).try_normalised().unwrap_or(Vec3::Z),
+        3 => Vec3::new(0.0, st * phi.sin(), mu)
+            .try_normalised()
+            .unwrap_or(Vec3::Z),
         _ => Vec3::new(st * phi.cos(), st * phi.sin(), mu),
     }
 }
@@ -136,25 +178,45 @@ fn walk(s: &SlabStack, p0: Vec3, d: Vec3, snap: bool) -> Result<(), TestCaseErro
     let expected = box_exit(&w, p0, d);
     let mut p = p0;
     let mut r = s.locate(p);
-    prop_assert!(!r.is_escaped(), "start point inside the world box must not be escaped");
+    prop_assert!(
+        !r.is_escaped(),
+        "start point inside the world box must not be escaped"
+    );
     let mut total = 0.0;
     let mut steps = 0usize;
     let bound = n + 3;
     while !r.is_escaped() {
         let b = s.step(p, d, r);
-        prop_assert!(b.distance_cm.is_finite() && b.distance_cm >= 0.0, "step {b:?}");
+        prop_assert!(
+            b.distance_cm.is_finite() && b.distance_cm >= 0.0,
+            "step {b:?}"
+        );
         // The medium of a region traversed for a non-negligible length must be the one `locate`
         // gives at the step's midpoint.
         if b.distance_cm > 1e-9 * (1.0 + w.scale_cm()) {
             let mid = p + d * (0.5 * b.distance_cm);
-            prop_assert_eq!(s.locate(mid), r, "midpoint {:?} of step {:?} from {:?}", mid, b, p);
+            prop_assert_eq!(
+                s.locate(mid),
+                r,
+                "midpoint {:?} of step {:?} from {:?}",
+                mid,
+                b,
+                p
+            );
         }
         total += b.distance_cm;
-        p = if snap { b.landing(p, d) } else { p + d * b.distance_cm };
+        p = if snap {
+            b.landing(p, d)
+        } else {
+            p + d * b.distance_cm
+        };
         prop_assert!(p.is_finite());
         r = b.next;
         steps += 1;
-        prop_assert!(steps <= bound, "more than {bound} steps for {n} layers (at {p:?}, region {r:?})");
+        prop_assert!(
+            steps <= bound,
+            "more than {bound} steps for {n} layers (at {p:?}, region {r:?})"
+        );
     }
     let tol = 1e-10 * (1.0 + w.scale_cm());
     prop_assert!(

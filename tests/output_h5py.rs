@@ -39,14 +39,21 @@ fn attr_spec(v: &AttrValue) -> Value {
         AttrValue::F64(x) => json!({"type": "f64", "value": x.to_bits()}),
         AttrValue::I64(x) => json!({"type": "i64", "value": x}),
         AttrValue::U64(x) => json!({"type": "u64", "value": x}),
-        AttrValue::F64s(v) => json!({"type": "f64s", "value": v.iter().map(|x| x.to_bits()).collect::<Vec<_>>()}),
+        AttrValue::F64s(v) => {
+            json!({"type": "f64s", "value": v.iter().map(|x| x.to_bits()).collect::<Vec<_>>()})
+        }
         AttrValue::I64s(v) => json!({"type": "i64s", "value": v}),
         AttrValue::Bool(b) => json!({"type": "bool", "value": b}),
     }
 }
 
 fn attrs_spec(attrs: &[(String, AttrValue)]) -> Value {
-    Value::Object(attrs.iter().map(|(k, v)| (k.clone(), attr_spec(v))).collect())
+    Value::Object(
+        attrs
+            .iter()
+            .map(|(k, v)| (k.clone(), attr_spec(v)))
+            .collect(),
+    )
 }
 
 fn values_spec(d: &DataBuf) -> Value {
@@ -63,7 +70,12 @@ fn values_spec(d: &DataBuf) -> Value {
     }
 }
 
-fn group_spec(g: &Group, parent: &str, groups: &mut Map<String, Value>, datasets: &mut Map<String, Value>) {
+fn group_spec(
+    g: &Group,
+    parent: &str,
+    groups: &mut Map<String, Value>,
+    datasets: &mut Map<String, Value>,
+) {
     let path = format!("{parent}/{}", g.name);
     groups.insert(path.clone(), json!({"attrs": attrs_spec(&g.attrs)}));
     for d in &g.datasets {
@@ -96,7 +108,9 @@ fn long_text() -> String {
     let mut s = String::new();
     let mut i = 0;
     while s.len() < 50_000 {
-        s.push_str(&format!("[layer.{i}]  # demo deck line, \"quoted\", µ = 0.2 cm⁻¹, Δz ≥ 1 mm\n"));
+        s.push_str(&format!(
+            "[layer.{i}]  # demo deck line, \"quoted\", µ = 0.2 cm⁻¹, Δz ≥ 1 mm\n"
+        ));
         i += 1;
     }
     s
@@ -122,26 +136,67 @@ fn demo_file() -> ResultFile {
 
     let mut grid = Group::with_kind("grid", "dose_grid");
     let (ni, nj, nk) = (3usize, 4usize, 5usize);
-    let vals: Vec<f64> = (0..ni * nj * nk).map(|n| n as f64 * 0.1 + 1.0 / 3.0).collect();
+    let vals: Vec<f64> = (0..ni * nj * nk)
+        .map(|n| n as f64 * 0.1 + 1.0 / 3.0)
+        .collect();
     grid.add_dataset(Dataset::f64_nd("dose", &[ni, nj, nk], vals, "Gy"));
     for (axis, n) in [ni, nj, nk].into_iter().enumerate() {
         let edges: Vec<f64> = (0..=n).map(|e| e as f64 * 0.25).collect();
-        grid.attach_axis("dose", axis, &format!("edges{axis}_cm"), &edges, "cm").unwrap();
+        grid.attach_axis("dose", axis, &format!("edges{axis}_cm"), &edges, "cm")
+            .unwrap();
     }
     let mut nested = Group::new("materials");
     nested.set_attr("count", 2u64);
     let mut deeper = Group::with_kind("deeper", "misc");
-    deeper.add_dataset(Dataset::new("index", &[ni, nj, nk], DataBuf::U16(vec![65535; ni * nj * nk]), "1"));
-    deeper.add_dataset(Dataset::new("mask", &[2, 2], DataBuf::U8(vec![0, 1, 254, 255]), "1"));
-    deeper.add_dataset(Dataset::new("counts", &[3], DataBuf::U64(vec![0, 1 << 53, u64::MAX]), "1"));
-    deeper.add_dataset(Dataset::new("u32", &[2], DataBuf::U32(vec![u32::MAX, 7]), "1"));
-    deeper.add_dataset(Dataset::new("signed", &[2], DataBuf::I64(vec![i64::MIN, i64::MAX]), "1"));
-    deeper.add_dataset(Dataset::new("i32", &[2], DataBuf::I32(vec![i32::MIN, -1]), "1"));
-    deeper.add_dataset(Dataset::new("single", &[2, 1], DataBuf::F32(vec![0.1, f32::MAX]), "keV").with_attr("note", "f32"));
+    deeper.add_dataset(Dataset::new(
+        "index",
+        &[ni, nj, nk],
+        DataBuf::U16(vec![65535; ni * nj * nk]),
+        "1",
+    ));
+    deeper.add_dataset(Dataset::new(
+        "mask",
+        &[2, 2],
+        DataBuf::U8(vec![0, 1, 254, 255]),
+        "1",
+    ));
+    deeper.add_dataset(Dataset::new(
+        "counts",
+        &[3],
+        DataBuf::U64(vec![0, 1 << 53, u64::MAX]),
+        "1",
+    ));
+    deeper.add_dataset(Dataset::new(
+        "u32",
+        &[2],
+        DataBuf::U32(vec![u32::MAX, 7]),
+        "1",
+    ));
+    deeper.add_dataset(Dataset::new(
+        "signed",
+        &[2],
+        DataBuf::I64(vec![i64::MIN, i64::MAX]),
+        "1",
+    ));
+    deeper.add_dataset(Dataset::new(
+        "i32",
+        &[2],
+        DataBuf::I32(vec![i32::MIN, -1]),
+        "1",
+    ));
+    deeper.add_dataset(
+        Dataset::new("single", &[2, 1], DataBuf::F32(vec![0.1, f32::MAX]), "keV")
+            .with_attr("note", "f32"),
+    );
     deeper.add_dataset(Dataset::new("scalar", &[], DataBuf::F64(vec![-1.5]), "s"));
     deeper.add_dataset(Dataset::new("empty", &[0], DataBuf::F64(vec![]), "Gy"));
     deeper.add_dataset(Dataset::text("resolved_deck", &long_text()));
-    deeper.add_dataset(Dataset::new("labels", &[3], DataBuf::Str(vec!["water".into(), "".into(), "bone — cortical".into()]), "1"));
+    deeper.add_dataset(Dataset::new(
+        "labels",
+        &[3],
+        DataBuf::Str(vec!["water".into(), "".into(), "bone — cortical".into()]),
+        "1",
+    ));
     nested.add_group(deeper);
     grid.add_group(nested);
     f.add_group(grid);
@@ -193,7 +248,16 @@ fn h5py_checker_detects_a_wrong_value() {
 
 fn run_checker(h5: &Path, spec: &Path) -> (bool, String) {
     let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/py/check_result.py");
-    let o = Command::new("python3").arg(&script).arg(h5).arg(spec).output().unwrap();
-    let text = format!("{}{}", String::from_utf8_lossy(&o.stdout), String::from_utf8_lossy(&o.stderr));
+    let o = Command::new("python3")
+        .arg(&script)
+        .arg(h5)
+        .arg(spec)
+        .output()
+        .unwrap();
+    let text = format!(
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
     (o.status.success(), text)
 }

@@ -74,7 +74,9 @@
 mod h5;
 mod model;
 
-pub use h5::{read, write_atomic, write_atomic_with, WriteOptions, FAULT_ENV_VAR};
+pub use h5::{
+    read, write_atomic, write_atomic_with, write_bytes_atomic, WriteOptions, FAULT_ENV_VAR,
+};
 pub use model::{AttrValue, DataBuf, Dataset, Group, ResultFile, TreeError};
 
 use std::path::PathBuf;

@@ -103,11 +103,11 @@ fn spec(f: &ResultFile) -> Value {
     json!({"attrs": attrs_spec(&f.attrs), "groups": groups, "datasets": datasets})
 }
 
-/// A 50 kB deck-like text with non-ASCII characters, newlines and quotes.
-fn long_text() -> String {
+/// A deck-like text of at least `bytes` bytes with non-ASCII characters, newlines and quotes.
+fn long_text(bytes: usize) -> String {
     let mut s = String::new();
     let mut i = 0;
-    while s.len() < 50_000 {
+    while s.len() < bytes {
         s.push_str(&format!(
             "[layer.{i}]  # demo deck line, \"quoted\", µ = 0.2 cm⁻¹, Δz ≥ 1 mm\n"
         ));
@@ -126,7 +126,7 @@ fn demo_file() -> ResultFile {
     f.set_attr("wall_time_s", 12.625);
     f.set_attr("start_time", "2026-01-31T12:00:00Z");
     f.set_attr("completion", "partial");
-    f.set_attr("deck_text", long_text());
+    f.set_attr("deck_text", long_text(50_000));
     f.set_attr("negative", i64::MIN);
     f.set_attr("is_demo", true);
     f.set_attr("not_demo", false);
@@ -190,7 +190,7 @@ fn demo_file() -> ResultFile {
     );
     deeper.add_dataset(Dataset::new("scalar", &[], DataBuf::F64(vec![-1.5]), "s"));
     deeper.add_dataset(Dataset::new("empty", &[0], DataBuf::F64(vec![]), "Gy"));
-    deeper.add_dataset(Dataset::text("resolved_deck", &long_text()));
+    deeper.add_dataset(Dataset::text("resolved_deck", &long_text(100_000)));
     deeper.add_dataset(Dataset::new(
         "labels",
         &[3],
@@ -236,7 +236,7 @@ fn h5py_checker_detects_a_wrong_value() {
     output::write_atomic(&h5, &file, false).unwrap();
     let mut s = spec(&file);
     s["datasets"]["/grid/dose"]["values"][7] = json!((2.0f64).to_bits());
-    s["attrs"]["deck_text"]["value"] = json!(long_text() + "x");
+    s["attrs"]["deck_text"]["value"] = json!(long_text(50_000) + "x");
     s["datasets"]["/grid/materials/deeper/mask"]["units"] = json!("Gy");
     let spec_path = dir.join("spec.json");
     std::fs::write(&spec_path, serde_json::to_vec(&s).unwrap()).unwrap();

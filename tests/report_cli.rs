@@ -265,6 +265,62 @@ fn report_prints_summary_and_draws_every_kind() {
     let _ = std::fs::remove_dir_all(&dir);
 }
 
+/// A disk that fills up while plots are replaced (simulated with the output layer's
+/// fault-injection variable) leaves every earlier plot intact and no temporary files.
+#[test]
+fn full_disk_during_report_keeps_earlier_plots() {
+    let dir = scratch("full");
+    let h5 = dir.join("demo.h5");
+    output::write_atomic(&h5, &demo_file(), false).unwrap();
+    let plots = dir.join("plots");
+    let o = dosemill(&[
+        "report".as_ref(),
+        h5.as_os_str(),
+        "--plots".as_ref(),
+        plots.as_os_str(),
+    ]);
+    assert!(o.status.success(), "{}", text(&o));
+    let snapshot = |d: &Path| {
+        let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(d)
+            .unwrap()
+            .map(|e| e.unwrap())
+            .map(|e| {
+                (
+                    e.file_name().to_string_lossy().into_owned(),
+                    std::fs::read(e.path()).unwrap(),
+                )
+            })
+            .collect();
+        v.sort();
+        v
+    };
+    let before = snapshot(&plots);
+    assert_eq!(before.len(), 4);
+    let o = Command::new(env!("CARGO_BIN_EXE_dosemill"))
+        .args([
+            "report".as_ref(),
+            h5.as_os_str(),
+            "--plots".as_ref(),
+            plots.as_os_str(),
+            "--force".as_ref(),
+        ])
+        .env(output::FAULT_ENV_VAR, "1000")
+        .output()
+        .unwrap();
+    assert!(
+        !o.status.success(),
+        "the injected full disk went unnoticed:\n{}",
+        text(&o)
+    );
+    assert!(text(&o).contains("no space left on device"), "{}", text(&o));
+    assert_eq!(
+        snapshot(&plots),
+        before,
+        "plots changed or temporary files left behind"
+    );
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
 #[test]
 fn report_on_a_missing_or_foreign_file_is_bad_input() {
     let dir = scratch("bad");

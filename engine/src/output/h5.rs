@@ -1,0 +1,409 @@
+//! HDF5 encoding of the result tree (the only place that uses `hdf5-pure`), atomic writing and
+//! reading back.
+
+use std::io::{self, Write};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+
+use hdf5_pure as h5;
+
+use super::model::{AttrValue, DataBuf, Dataset, Group, ResultFile};
+use super::OutputError;
+
+/// Environment variable for fault injection in tests: when set to a byte count `N`, every
+/// result-file write fails with "no space left on device" after `N` bytes reached the
+/// temporary file, exactly as a full disk would. Unset (the normal case) it does nothing.
+pub const FAULT_ENV_VAR: &str = "DOSEMILL_FAULT_DISK_FULL_AFTER_BYTES";
+
+/// How [`write_atomic_with`] writes.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct WriteOptions {
+    /// Replace an existing destination file (the CLI's `--force`).
+    pub overwrite: bool,
+    /// Fault injection: fail as a full disk after this many bytes. `None` in normal use.
+    pub fail_after_bytes: Option<u64>,
+}
+
+impl WriteOptions {
+    /// Options with `overwrite`, and the fault injection of [`FAULT_ENV_VAR`] if it is set.
+    pub fn from_env(overwrite: bool) -> Self {
+        let fail_after_bytes = std::env::var(FAULT_ENV_VAR).ok().and_then(|v| v.trim().parse().ok());
+        WriteOptions { overwrite, fail_after_bytes }
+    }
+}
+
+/// Write `file` to `path` atomically: serialise into a temporary file in the same folder,
+/// fsync it, then rename it to `path` (and fsync the folder).
+///
+/// An existing `path` is refused with [`OutputError::Exists`] unless `overwrite`. On any error
+/// the temporary file is removed and whatever was at `path` before is left as it was.
+/// Honours the fault-injection variable [`FAULT_ENV_VAR`].
+pub fn write_atomic(path: impl AsRef<Path>, file: &ResultFile, overwrite: bool) -> Result<(), OutputError> {
+    write_atomic_with(path, file, &WriteOptions::from_env(overwrite))
+}
+
+/// [`write_atomic`] with explicit options (no environment lookup).
+pub fn write_atomic_with(
+    path: impl AsRef<Path>,
+    file: &ResultFile,
+    options: &WriteOptions,
+) -> Result<(), OutputError> {
+    let path = path.as_ref();
+    file.validate().map_err(|source| OutputError::Invalid { path: path.to_owned(), source })?;
+    if !options.overwrite && path.exists() {
+        return Err(OutputError::Exists { path: path.to_owned() });
+    }
+    let builder = build(file);
+
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.to_owned(),
+        _ => PathBuf::from("."),
+    };
+    let (tmp_path, tmp) = create_temp(&dir, path)?;
+    let mut guard = TempGuard { path: tmp_path.clone(), armed: true };
+
+    let io_err = |action, source| OutputError::Io { path: tmp_path.clone(), action, source };
+    let mut sink = LimitedWriter { inner: &tmp, written: 0, limit: options.fail_after_bytes };
+    match builder.finish_to(&mut sink) {
+        Ok(()) => {}
+        Err(h5::Error::Io(e)) => return Err(io_err("cannot write temporary result file", e)),
+        Err(e) => return Err(hdf5_err(path, "/".into(), e)),
+    }
+    tmp.sync_all().map_err(|e| io_err("cannot flush temporary result file to disk", e))?;
+    drop(tmp);
+
+    if options.overwrite {
+        std::fs::rename(&tmp_path, path).map_err(|source| OutputError::Io {
+            path: path.to_owned(),
+            action: "cannot move the finished result file into place",
+            source,
+        })?;
+    } else {
+        // A hard link fails if the destination appeared meanwhile, so nothing is replaced
+        // even in a race; fall back to a checked rename where links are unsupported.
+        match std::fs::hard_link(&tmp_path, path) {
+            Ok(()) => {
+                let _ = std::fs::remove_file(&tmp_path);
+            }
+            Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
+                return Err(OutputError::Exists { path: path.to_owned() });
+            }
+            Err(_) => {
+                if path.exists() {
+                    return Err(OutputError::Exists { path: path.to_owned() });
+                }
+                std::fs::rename(&tmp_path, path).map_err(|source| OutputError::Io {
+                    path: path.to_owned(),
+                    action: "cannot move the finished result file into place",
+                    source,
+                })?;
+            }
+        }
+    }
+    guard.armed = false;
+    sync_dir(&dir);
+    Ok(())
+}
+
+/// Read a result file into the tree. Attributes, groups and datasets come back sorted by name.
+pub fn read(path: impl AsRef<Path>) -> Result<ResultFile, OutputError> {
+    let path = path.as_ref();
+    let bytes = std::fs::read(path).map_err(|source| OutputError::Io {
+        path: path.to_owned(),
+        action: "cannot read result file",
+        source,
+    })?;
+    let file = h5::File::from_bytes(bytes).map_err(|e| hdf5_err(path, "/".into(), e))?;
+    let root = file.root();
+    let attrs = read_attrs(path, "/", root.attrs().map_err(|e| hdf5_err(path, "/".into(), e))?)?;
+    if let Some(d) = sorted(root.datasets().map_err(|e| hdf5_err(path, "/".into(), e))?).first() {
+        return Err(OutputError::Unsupported {
+            path: path.to_owned(),
+            object: format!("/{d}"),
+            what: "dataset directly under the root; result files keep datasets in groups".into(),
+        });
+    }
+    let mut groups = Vec::new();
+    for name in sorted(root.groups().map_err(|e| hdf5_err(path, "/".into(), e))?) {
+        groups.push(read_group(path, &file, &name)?);
+    }
+    Ok(ResultFile { attrs, groups })
+}
+
+// ---------------------------------------------------------------------------------------------
+// Writing
+
+fn build(file: &ResultFile) -> h5::FileBuilder {
+    let mut b = h5::FileBuilder::new();
+    for (name, value) in &file.attrs {
+        b.set_attr(name, to_h5_attr(value));
+    }
+    for g in &file.groups {
+        let mut gb = b.create_group(&g.name);
+        fill_group(&mut gb, g);
+        b.add_group(gb.finish());
+    }
+    b
+}
+
+fn fill_group(gb: &mut h5::GroupBuilder, g: &Group) {
+    for (name, value) in &g.attrs {
+        gb.set_attr(name, to_h5_attr(value));
+    }
+    for d in &g.datasets {
+        let db = gb.create_dataset(&d.name);
+        write_dataset(db, d);
+    }
+    for sub in &g.groups {
+        let mut sb = gb.create_group(&sub.name);
+        fill_group(&mut sb, sub);
+        gb.add_group(sb.finish());
+    }
+}
+
+fn write_dataset(db: &mut h5::DatasetBuilder, d: &Dataset) {
+    match &d.data {
+        DataBuf::F64(v) => db.with_f64_data(v),
+        DataBuf::F32(v) => db.with_f32_data(v),
+        DataBuf::I64(v) => db.with_i64_data(v),
+        DataBuf::I32(v) => db.with_i32_data(v),
+        DataBuf::U64(v) => db.with_u64_data(v),
+        DataBuf::U32(v) => db.with_u32_data(v),
+        DataBuf::U16(v) => db.with_u16_data(v),
+        DataBuf::U8(v) => db.with_u8_data(v),
+        DataBuf::Str(v) => {
+            let refs: Vec<&str> = v.iter().map(String::as_str).collect();
+            db.with_vlen_strings(&refs)
+        }
+    };
+    let shape: Vec<u64> = d.shape.iter().map(|&n| n as u64).collect();
+    db.with_shape(&shape);
+    db.set_attr("units", h5::AttrValue::VarLenString(d.units.clone()));
+    for (name, value) in &d.attrs {
+        db.set_attr(name, to_h5_attr(value));
+    }
+}
+
+fn to_h5_attr(value: &AttrValue) -> h5::AttrValue {
+    match value {
+        AttrValue::Str(s) => h5::AttrValue::VarLenString(s.clone()),
+        AttrValue::F64(x) => h5::AttrValue::F64(*x),
+        AttrValue::I64(x) => h5::AttrValue::I64(*x),
+        AttrValue::U64(x) => h5::AttrValue::U64(*x),
+        AttrValue::F64s(v) => h5::AttrValue::F64Array(v.clone()),
+        AttrValue::I64s(v) => h5::AttrValue::I64Array(v.clone()),
+        AttrValue::Bool(b) => h5::AttrValue::U8(u8::from(*b)),
+    }
+}
+
+static TEMP_COUNTER: AtomicU64 = AtomicU64::new(0);
+
+fn create_temp(dir: &Path, dest: &Path) -> Result<(PathBuf, std::fs::File), OutputError> {
+    let stem = dest.file_name().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "result".into());
+    loop {
+        let n = TEMP_COUNTER.fetch_add(1, Ordering::Relaxed);
+        let tmp = dir.join(format!(".{stem}.partial-{}-{n}", std::process::id()));
+        match std::fs::OpenOptions::new().write(true).create_new(true).open(&tmp) {
+            Ok(f) => return Ok((tmp, f)),
+            Err(e) if e.kind() == io::ErrorKind::AlreadyExists => continue,
+            Err(source) => {
+                return Err(OutputError::Io {
+                    path: dest.to_owned(),
+                    action: "cannot create a temporary file in the destination folder (does the folder exist and is it writable?)",
+                    source,
+                })
+            }
+        }
+    }
+}
+
+/// Removes the temporary file unless disarmed after a successful rename.
+struct TempGuard {
+    path: PathBuf,
+    armed: bool,
+}
+
+impl Drop for TempGuard {
+    fn drop(&mut self) {
+        if self.armed {
+            let _ = std::fs::remove_file(&self.path);
+        }
+    }
+}
+
+/// A writer that fails like a full disk after `limit` bytes (no limit in normal use).
+struct LimitedWriter<W> {
+    inner: W,
+    written: u64,
+    limit: Option<u64>,
+}
+
+impl<W: Write> Write for LimitedWriter<W> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        let allowed = match self.limit {
+            None => buf.len(),
+            Some(limit) => {
+                let left = limit.saturating_sub(self.written);
+                if left == 0 && !buf.is_empty() {
+                    return Err(io::Error::new(
+                        io::ErrorKind::StorageFull,
+                        format!("no space left on device (injected by {FAULT_ENV_VAR})"),
+                    ));
+                }
+                buf.len().min(usize::try_from(left).unwrap_or(usize::MAX))
+            }
+        };
+        let n = self.inner.write(&buf[..allowed])?;
+        self.written += n as u64;
+        Ok(n)
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        self.inner.flush()
+    }
+}
+
+#[cfg(unix)]
+fn sync_dir(dir: &Path) {
+    // Makes the rename durable; failure here cannot undo the rename, so it is not reported.
+    if let Ok(d) = std::fs::File::open(dir) {
+        let _ = d.sync_all();
+    }
+}
+
+#[cfg(not(unix))]
+fn sync_dir(_dir: &Path) {}
+
+// ---------------------------------------------------------------------------------------------
+// Reading
+
+fn sorted(mut v: Vec<String>) -> Vec<String> {
+    v.sort();
+    v
+}
+
+fn hdf5_err(path: &Path, object: String, e: h5::Error) -> OutputError {
+    OutputError::Hdf5 { path: path.to_owned(), object, message: e.to_string() }
+}
+
+fn read_group(path: &Path, file: &h5::File, gpath: &str) -> Result<Group, OutputError> {
+    let object = format!("/{gpath}");
+    let e = |err| hdf5_err(path, object.clone(), err);
+    let g = file.group(gpath).map_err(e)?;
+    let attrs = read_attrs(path, &object, g.attrs().map_err(e)?)?;
+    let mut datasets = Vec::new();
+    for name in sorted(g.datasets().map_err(e)?) {
+        datasets.push(read_dataset(path, file, &format!("{gpath}/{name}"), &name)?);
+    }
+    let mut groups = Vec::new();
+    for name in sorted(g.groups().map_err(e)?) {
+        groups.push(read_group(path, file, &format!("{gpath}/{name}"))?);
+    }
+    let name = gpath.rsplit('/').next().unwrap_or(gpath).to_owned();
+    Ok(Group { name, attrs, datasets, groups })
+}
+
+fn read_dataset(path: &Path, file: &h5::File, dpath: &str, name: &str) -> Result<Dataset, OutputError> {
+    let object = format!("/{dpath}");
+    let e = |err| hdf5_err(path, object.clone(), err);
+    let ds = file.dataset(dpath).map_err(e)?;
+    let shape: Vec<usize> = ds.shape().map_err(e)?.into_iter().map(|n| n as usize).collect();
+    let data = match ds.dtype().map_err(e)? {
+        h5::DType::F64 => DataBuf::F64(ds.read_f64().map_err(e)?),
+        h5::DType::F32 => DataBuf::F32(ds.read_f32().map_err(e)?),
+        h5::DType::I64 => DataBuf::I64(ds.read_i64().map_err(e)?),
+        h5::DType::I32 => DataBuf::I32(ds.read_i32().map_err(e)?),
+        h5::DType::U64 => DataBuf::U64(ds.read_u64().map_err(e)?),
+        h5::DType::U32 => DataBuf::U32(ds.read_u32().map_err(e)?),
+        h5::DType::U16 => DataBuf::U16(ds.read_u16().map_err(e)?),
+        h5::DType::U8 => DataBuf::U8(ds.read_u8().map_err(e)?),
+        h5::DType::String | h5::DType::VariableLengthString => DataBuf::Str(ds.read_string().map_err(e)?),
+        other => {
+            return Err(OutputError::Unsupported {
+                path: path.to_owned(),
+                object,
+                what: format!("dataset element type {other} is not one a result file uses"),
+            })
+        }
+    };
+    let mut attrs = read_attrs(path, &object, ds.attrs().map_err(e)?)?;
+    let Some(pos) = attrs.iter().position(|(n, _)| n == "units") else {
+        return Err(OutputError::Unsupported {
+            path: path.to_owned(),
+            object,
+            what: "dataset has no `units` attribute".into(),
+        });
+    };
+    let units = match attrs.remove(pos).1 {
+        AttrValue::Str(s) => s,
+        other => {
+            return Err(OutputError::Unsupported {
+                path: path.to_owned(),
+                object,
+                what: format!("`units` attribute is a {}, expected a string", other.type_name()),
+            })
+        }
+    };
+    let dataset = Dataset { name: name.to_owned(), shape, data, units, attrs };
+    if dataset.element_count() != dataset.data.len() {
+        return Err(OutputError::Unsupported {
+            path: path.to_owned(),
+            object,
+            what: format!("shape {:?} does not match {} elements read", dataset.shape, dataset.data.len()),
+        });
+    }
+    Ok(dataset)
+}
+
+fn read_attrs(
+    path: &Path,
+    object: &str,
+    map: std::collections::HashMap<String, h5::AttrValue>,
+) -> Result<Vec<(String, AttrValue)>, OutputError> {
+    let mut out = Vec::with_capacity(map.len());
+    for (name, value) in map {
+        let Some(v) = from_h5_attr(&value) else {
+            return Err(OutputError::Unsupported {
+                path: path.to_owned(),
+                object: format!("{object} attribute `{name}`"),
+                what: format!("attribute type {} is not one a result file uses", value.type_name()),
+            });
+        };
+        out.push((name, v));
+    }
+    out.sort_by(|a, b| a.0.cmp(&b.0));
+    Ok(out)
+}
+
+fn from_h5_attr(value: &h5::AttrValue) -> Option<AttrValue> {
+    use h5::AttrValue as H;
+    Some(match value {
+        H::F64(x) => AttrValue::F64(*x),
+        H::F32(x) => AttrValue::F64(f64::from(*x)),
+        H::I64(x) => AttrValue::I64(*x),
+        H::I32(x) => AttrValue::I64(i64::from(*x)),
+        H::I16(x) => AttrValue::I64(i64::from(*x)),
+        H::I8(x) => AttrValue::I64(i64::from(*x)),
+        H::U64(x) => AttrValue::U64(*x),
+        H::U32(x) => AttrValue::U64(u64::from(*x)),
+        H::U16(x) => AttrValue::U64(u64::from(*x)),
+        H::U8(0) => AttrValue::Bool(false),
+        H::U8(1) => AttrValue::Bool(true),
+        H::U8(x) => AttrValue::U64(u64::from(*x)),
+        H::F64Array(v) => AttrValue::F64s(v.clone()),
+        H::F32Array(v) => AttrValue::F64s(v.iter().map(|&x| f64::from(x)).collect()),
+        H::I64Array(v) => AttrValue::I64s(v.clone()),
+        other => {
+            if let Some(s) = other.as_str() {
+                AttrValue::Str(s.to_owned())
+            } else if let Some(v) = other.to_i64s() {
+                AttrValue::I64s(v)
+            } else {
+                return None;
+            }
+        }
+    })
+}
+
+#[cfg(test)]
+mod tests;

@@ -67,7 +67,9 @@
 
 mod data;
 mod electron;
+pub mod export;
 pub mod model;
+pub mod plot;
 mod quadrature;
 pub mod quality;
 mod tube;

@@ -13,7 +13,8 @@ pub mod library;
 pub mod derived;
 
 pub use element::{elements, Element, ElementTable, Line, Shell, ShellData, XsError};
-pub use provenance::Provenance;
+pub use element::{embedded_table_bytes, Interaction, TableFormatError, TABLE_FORMAT_VERSION, Z_MAX};
+pub use provenance::{Provenance, ProvenanceError};
 
 /// Lowest photon energy the tables cover (keV).
 pub const E_MIN_KEV: f64 = 1.0;

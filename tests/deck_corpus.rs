@@ -1,10 +1,10 @@
-//! Deck corpus: every malformed deck under tests/decks/bad/ must fail with the error its
-//! `# expect:` lines name (position and text), without panicking; every deck under
+//! Deck corpus: every malformed deck under tests/decks/bad/ must fail with the errors its sidecar
+//! `.expect` file names (position and text), without panicking; every deck under
 //! tests/decks/good/ must load, and its resolved TOML must load back to the same resolved deck.
 //!
-//! Expectation lines, at the top of each bad deck:
-//! `# expect: LINE:COLUMN: text` (error in the deck itself) or
-//! `# expect: FILE:LINE:COLUMN: text` (error located in another file of the corpus, by name).
+//! Each line of `NAME.expect` (beside `NAME.toml`) is one error that must be reported:
+//! `LINE:COLUMN: text` (located in the deck itself) or `FILE:LINE:COLUMN: text` (located in
+//! another file of the corpus, by file name). `text` must appear in the error's display.
 
 use dosemill_engine::deck::{self, Composition, DeckError, Geometry, ScoreKind, SourceEnergy};
 use std::panic::{catch_unwind, AssertUnwindSafe};
@@ -35,7 +35,10 @@ struct Expect {
 fn expectations(text: &str) -> Vec<Expect> {
     let mut out = Vec::new();
     for l in text.lines() {
-        let Some(rest) = l.strip_prefix("# expect: ") else { continue };
+        let rest = l.trim();
+        if rest.is_empty() || rest.starts_with('#') {
+            continue;
+        }
         let (file, rest) = if rest.starts_with(|c: char| c.is_ascii_digit()) {
             (None, rest)
         } else {
@@ -68,9 +71,10 @@ fn bad_decks_fail_with_the_expected_errors() {
     assert!(decks.len() >= 30, "the corpus has {} bad decks", decks.len());
     let mut failures = Vec::new();
     for d in &decks {
-        let text = std::fs::read_to_string(d).unwrap();
+        let sidecar = d.with_extension("expect");
+        let text = std::fs::read_to_string(&sidecar).unwrap_or_else(|_| panic!("{} has no .expect file", d.display()));
         let exp = expectations(&text);
-        assert!(!exp.is_empty(), "{} has no `# expect:` line", d.display());
+        assert!(!exp.is_empty(), "{} is empty", sidecar.display());
         let result = catch_unwind(AssertUnwindSafe(|| deck::load(d)));
         let errs = match result {
             Err(_) => {

@@ -155,7 +155,7 @@ pub(crate) fn unit_hint(wrong: &str, right: &str, value: Option<f64>) -> Option<
     }
     let wu = unit_label(wsuf);
     let ru = unit_label(rsuf);
-    let mut s = format!("{}s are given in {ru} in decks", w.1);
+    let mut s = format!("{} are given in {ru} in decks", plural(w.1));
     if let Some(v) = value {
         let conv = v * w.2 / r.2;
         s.push_str(&format!(": {v} {wu} = {} {ru}", fmt_num(conv)));
@@ -167,7 +167,21 @@ fn unit_label(suffix: &str) -> &str {
     match suffix {
         "_g_cm3" | "_g_cc" => "g/cm³",
         "_kg_m3" => "kg/m³",
+        "_kev" => "keV",
+        "_ev" => "eV",
+        "_mev" => "MeV",
+        "_deg" => "°",
         s => &s[1..],
+    }
+}
+
+fn plural(quantity: &str) -> &str {
+    match quantity {
+        "density" => "densities",
+        "energy" => "energies",
+        "length" => "lengths",
+        "angle" => "angles",
+        _ => "times",
     }
 }
 

@@ -105,7 +105,7 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
             let mut name = base_stem(&base.run.output);
             for (ai, &vi) in combo.iter().enumerate() {
                 let ax = &axes[ai];
-                sweep::set_path(&mut t, &ax.key_path, ax.nodes[vi].clone());
+                sweep::set_path(&mut t, &ax.key_path, ax.nodes[vi].clone(), ax.key_loc);
                 values.push((ax.key_path.clone(), ax.values[vi].clone()));
                 name.push_str(&format!("__{}-{}", labels[ai], sweep::value_label(&ax.values[vi])));
             }

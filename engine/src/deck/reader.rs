@@ -139,7 +139,8 @@ pub(crate) fn uint_in(cx: &mut Cx, n: &Node, path: &str, lo: u64, hi: u64) -> Op
             let msg = if f.is_finite() && f.fract() != 0.0 {
                 format!("expected a whole number, found {f}")
             } else {
-                format!("out of range: {f} (valid: {}–{})", lo, fmt_big(hi))
+                let shown = if f.abs() >= 1e8 { format!("{f:e}") } else { f.to_string() };
+                format!("out of range: {shown} (valid: {}–{})", lo, fmt_big(hi))
             };
             cx.err(n.loc, path, msg, None);
             return None;
@@ -163,8 +164,9 @@ pub(crate) fn uint_in(cx: &mut Cx, n: &Node, path: &str, lo: u64, hi: u64) -> Op
 
 /// Large counts in a readable form (1e15 rather than 1000000000000000).
 pub(crate) fn fmt_big(v: u64) -> String {
-    if v >= 100_000_000 {
-        format!("{:e}", v as f64)
+    let e = format!("{:e}", v as f64);
+    if v >= 100_000_000 && !e.contains('.') {
+        e
     } else {
         v.to_string()
     }

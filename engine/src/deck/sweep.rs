@@ -15,6 +15,7 @@ pub struct SweepAxis {
     /// Values in the order written.
     pub values: Vec<toml::Value>,
     pub(crate) nodes: Vec<Node>,
+    pub(crate) key_loc: Loc,
 }
 
 pub(crate) fn to_toml_value(n: &Node) -> toml::Value {
@@ -60,7 +61,7 @@ pub(crate) fn read_axes(cx: &mut Cx, sweep: &Node, root: &Node) -> Vec<SweepAxis
             cx.err(loc, &kp, msg, hint);
             continue;
         }
-        out.push(SweepAxis { key_path: k.clone(), values: items.iter().map(to_toml_value).collect(), nodes: items.clone() });
+        out.push(SweepAxis { key_path: k.clone(), values: items.iter().map(to_toml_value).collect(), nodes: items.clone(), key_loc: loc });
     }
     out
 }
@@ -107,17 +108,18 @@ fn check_path(root: &Node, path: &str) -> Result<(), (String, Option<String>)> {
 }
 
 /// Set the value at a checked path.
-pub(crate) fn set_path(root: &mut Node, path: &str, value: Node) {
+pub(crate) fn set_path(root: &mut Node, path: &str, value: Node, key_loc: Loc) {
     let segs: Vec<&str> = path.split('.').collect();
     let mut cur = root;
     for (i, seg) in segs.iter().enumerate() {
         let last = i + 1 == segs.len();
-        let parent_loc = cur.loc;
         cur = match &mut cur.val {
             Val::Array(items) => {
                 let idx: usize = seg.parse().expect("checked path");
                 if last {
-                    items[idx] = value;
+                    let mut v = value;
+                    v.key_loc = Some(key_loc);
+                    items[idx] = v;
                     return;
                 }
                 &mut items[idx]
@@ -125,17 +127,12 @@ pub(crate) fn set_path(root: &mut Node, path: &str, value: Node) {
             Val::Table(entries) => {
                 let pos = entries.iter().position(|(k, _)| k == seg);
                 if last {
+                    // Errors about the key point at the sweep's key, about the value at the value.
                     let mut v = value;
+                    v.key_loc = Some(key_loc);
                     match pos {
-                        Some(p) => {
-                            v.key_loc = Some(v.loc);
-                            entries[p].1 = v;
-                        }
-                        None => {
-                            v.key_loc = Some(v.loc);
-                            let _ = parent_loc;
-                            entries.push((seg.to_string(), v));
-                        }
+                        Some(p) => entries[p].1 = v,
+                        None => entries.push((seg.to_string(), v)),
                     }
                     return;
                 }

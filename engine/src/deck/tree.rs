@@ -175,7 +175,7 @@ pub(crate) fn parse_text(files: &Files, file: usize) -> Result<Node, DeckError> 
         Ok(doc) => Ok(from_table(file, doc.as_table(), Loc { file, start: 0, end: 0 })),
         Err(e) => {
             let start = e.span().map(|r| r.start).unwrap_or(0);
-            let msg = e.message().trim().to_string();
+            let msg = e.message().trim().replace('\n', "; ");
             Err(files.error(
                 Loc { file, start, end: start },
                 "",

@@ -435,20 +435,21 @@ impl<'f> Walk<'f> {
                     return None;
                 };
                 let th = th.trim();
-                let (num_part, factor) = if let Some(v) = th.strip_suffix("mm") {
-                    (v, 0.1)
+                // Divisors (not factors) keep round values exact: 0.1 mm → 0.01 cm.
+                let (num_part, per_cm) = if let Some(v) = th.strip_suffix("mm") {
+                    (v, 10.0)
                 } else if let Some(v) = th.strip_suffix("um") {
-                    (v, 1e-4)
+                    (v, 1e4)
                 } else if let Some(v) = th.strip_suffix("cm") {
                     (v, 1.0)
                 } else {
-                    (th, 0.1)
+                    (th, 10.0)
                 };
                 let Ok(v) = num_part.trim().parse::<f64>() else {
                     self.err(n.loc, path, format!("filter thickness `{th}` is not a number"), Some("write e.g. `\"Al:2.5\"` (mm), `\"Cu:0.1mm\"` or `\"Al:0.25cm\"`".into()));
                     return None;
                 };
-                let cm = v * factor;
+                let cm = v / per_cm;
                 if !THICK.contains(cm) {
                     self.err(n.loc, path, format!("filter thickness out of range: {} cm (valid: {})", fmt_num(cm), THICK.describe()), None);
                     return None;
@@ -466,7 +467,7 @@ impl<'f> Walk<'f> {
                         cx.err(c.key_or_value(), &t.kp("thickness_cm"), "give the thickness once, in mm or in cm", None);
                         None
                     }
-                    (Some(m), None) => num_in(cx, m, &t.kp("thickness_mm"), Range::pos(1000.0, "mm")).map(|v| v * 0.1),
+                    (Some(m), None) => num_in(cx, m, &t.kp("thickness_mm"), Range::pos(1000.0, "mm")).map(|v| v / 10.0),
                     (None, Some(c)) => num_in(cx, c, &t.kp("thickness_cm"), THICK),
                     (None, None) => {
                         cx.err(t.loc(), &t.kp("thickness_mm"), "missing key `thickness_mm`", Some("add `thickness_mm = 2.5` (or `thickness_cm`)".into()));

@@ -228,3 +228,54 @@ fn display_form() {
     };
     assert_eq!(e.to_string(), "runs/x.toml:12:3: key `geometry.layer[0].thicknes_cm`: unknown key; did you mean `thickness_cm`?");
 }
+
+/// Damaged text must give errors, never a panic: every good deck with, at many places, a byte
+/// deleted, a quote, bracket or `=` inserted, or a digit turned into a letter.
+#[test]
+fn damaged_decks_never_panic() {
+    let mut tried = 0;
+    for d in decks_in(&corpus("good")) {
+        let text = std::fs::read_to_string(&d).unwrap();
+        let bytes = text.as_bytes();
+        let step = (bytes.len() / 120).max(1);
+        for pos in (0..bytes.len()).step_by(step) {
+            if !text.is_char_boundary(pos) {
+                continue;
+            }
+            let mut variants = Vec::new();
+            let mut del = text.clone();
+            if let Some(c) = text[pos..].chars().next() {
+                del.replace_range(pos..pos + c.len_utf8(), "");
+                variants.push(del);
+            }
+            for ins in ["\"", "[", "]", "=", "\n", "-", "x"] {
+                let mut t = text.clone();
+                t.insert_str(pos, ins);
+                variants.push(t);
+            }
+            for v in variants {
+                tried += 1;
+                let r = catch_unwind(AssertUnwindSafe(|| deck::load_str(&v, &d)));
+                assert!(r.is_ok(), "load panicked on damaged {} at byte {pos}:\n{v}", d.display());
+            }
+        }
+    }
+    assert!(tried > 1000, "only {tried} variants tried");
+}
+
+/// The complete deck in the schema documentation loads, and its sweep names are the documented ones.
+#[test]
+fn schema_example_loads() {
+    let doc = std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("engine/src/deck/SCHEMA.md")).unwrap();
+    let start = doc.find("```toml\n# complete deck").expect("complete deck block") + "```toml\n".len();
+    let len = doc[start..].find("```").unwrap();
+    let text = &doc[start..start + len];
+    let dir = std::env::temp_dir().join("dosemill_schema_example");
+    let d = deck::load_str(text, &dir.join("slab_study.toml")).unwrap_or_else(|e| panic!("{}", e.iter().map(|x| x.to_string()).collect::<Vec<_>>().join("\n")));
+    assert_eq!(d.resolved.scores.len(), 5);
+    let pts = deck::expand(&d);
+    assert_eq!(pts.len(), 6);
+    assert_eq!(pts[0].1.run.output.file_name().unwrap(), "slab_study__kvp-60__thickness_cm-0.5.h5");
+    assert_eq!(pts[5].1.run.output.file_name().unwrap(), "slab_study__kvp-100__thickness_cm-1.h5");
+    assert!(pts[0].1.run.output.ends_with("results/slab_study__kvp-60__thickness_cm-0.5.h5"));
+}

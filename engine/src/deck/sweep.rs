@@ -107,39 +107,39 @@ fn check_path(root: &Node, path: &str) -> Result<(), (String, Option<String>)> {
     Ok(())
 }
 
-/// Set the value at a checked path.
+/// Set the value at a path checked against the base deck. When an earlier axis of the same
+/// combination has replaced a table on the way by a plain value, nothing is set: validation
+/// then reports the replaced value.
 pub(crate) fn set_path(root: &mut Node, path: &str, value: Node, key_loc: Loc) {
     let segs: Vec<&str> = path.split('.').collect();
     let mut cur = root;
     for (i, seg) in segs.iter().enumerate() {
         let last = i + 1 == segs.len();
-        cur = match &mut cur.val {
+        // Errors about the key point at the sweep's key, about the value at the value.
+        let next = match &mut cur.val {
             Val::Array(items) => {
-                let idx: usize = seg.parse().expect("checked path");
-                if last {
+                let Some(slot) = seg.parse::<usize>().ok().and_then(|idx| items.get_mut(idx)) else { return };
+                slot
+            }
+            Val::Table(entries) => match entries.iter().position(|(k, _)| k == seg) {
+                Some(p) => &mut entries[p].1,
+                None if last => {
                     let mut v = value;
                     v.key_loc = Some(key_loc);
-                    items[idx] = v;
+                    entries.push((seg.to_string(), v));
                     return;
                 }
-                &mut items[idx]
-            }
-            Val::Table(entries) => {
-                let pos = entries.iter().position(|(k, _)| k == seg);
-                if last {
-                    // Errors about the key point at the sweep's key, about the value at the value.
-                    let mut v = value;
-                    v.key_loc = Some(key_loc);
-                    match pos {
-                        Some(p) => entries[p].1 = v,
-                        None => entries.push((seg.to_string(), v)),
-                    }
-                    return;
-                }
-                &mut entries[pos.expect("checked path")].1
-            }
-            _ => unreachable!("checked path"),
+                None => return,
+            },
+            _ => return,
         };
+        if last {
+            let mut v = value;
+            v.key_loc = Some(key_loc);
+            *next = v;
+            return;
+        }
+        cur = next;
     }
 }
 

@@ -82,6 +82,16 @@ pub enum EnergySpectrum {
         /// Weights, as an alias table.
         table: AliasTable,
     },
+    /// Entries `lo_kev[i]..hi_kev[i]` (equal ends for a line), energy uniform inside the entry:
+    /// the form a tube spectrum takes (continuum bins and lines).
+    Ranges {
+        /// Lower ends (keV).
+        lo_kev: Vec<f64>,
+        /// Upper ends (keV).
+        hi_kev: Vec<f64>,
+        /// Entry weights, as an alias table.
+        table: AliasTable,
+    },
     /// A histogram: bin `i` spans `edges_kev[i]..edges_kev[i+1]`; energy uniform inside the bin.
     Binned {
         /// Bin edges (keV), ascending.
@@ -102,6 +112,10 @@ impl EnergySpectrum {
                 let i = table.sample(rng);
                 edges_kev[i] + rng.uniform() * (edges_kev[i + 1] - edges_kev[i])
             }
+            EnergySpectrum::Ranges { lo_kev, hi_kev, table } => {
+                let i = table.sample(rng);
+                lo_kev[i] + rng.uniform() * (hi_kev[i] - lo_kev[i])
+            }
         }
     }
 
@@ -111,6 +125,7 @@ impl EnergySpectrum {
             EnergySpectrum::Mono(e) => *e,
             EnergySpectrum::Discrete { kev, .. } => kev.iter().cloned().fold(0.0, f64::max),
             EnergySpectrum::Binned { edges_kev, .. } => *edges_kev.last().unwrap(),
+            EnergySpectrum::Ranges { hi_kev, .. } => hi_kev.iter().cloned().fold(0.0, f64::max),
         }
     }
 
@@ -120,6 +135,7 @@ impl EnergySpectrum {
             EnergySpectrum::Mono(e) => *e,
             EnergySpectrum::Discrete { kev, .. } => kev.iter().cloned().fold(f64::INFINITY, f64::min),
             EnergySpectrum::Binned { edges_kev, .. } => edges_kev[0],
+            EnergySpectrum::Ranges { lo_kev, .. } => lo_kev.iter().cloned().fold(f64::INFINITY, f64::min),
         }
     }
 }

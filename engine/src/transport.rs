@@ -376,6 +376,24 @@ pub fn run_chunks(problem: &Problem, settings: &RunSettings, chunks: &[u64], sto
     RunResult { scorers: merged, histories, chunks: all_chunks, wall_time_s: start.elapsed().as_secs_f64() }
 }
 
+impl RunResult {
+    /// Adds the scores, histories and chunks of `other` (another set of chunks of the same run).
+    pub fn merge(&mut self, other: &RunResult) {
+        for (m, s) in self.scorers.iter_mut().zip(&other.scorers) {
+            m.tally_mut().merge(s.tally());
+        }
+        self.histories += other.histories;
+        self.chunks.extend_from_slice(&other.chunks);
+        self.chunks.sort_unstable();
+        self.wall_time_s += other.wall_time_s;
+    }
+
+    /// An empty result for `problem` (no chunks run).
+    pub fn empty(problem: &Problem) -> RunResult {
+        RunResult { scorers: problem.scorers.iter().map(Scorer::zeroed).collect(), histories: 0, chunks: Vec::new(), wall_time_s: 0.0 }
+    }
+}
+
 /// Runs every chunk of the run.
 pub fn run(problem: &Problem, settings: &RunSettings) -> RunResult {
     let n = crate::rng::chunk_count(settings.histories, settings.chunk_histories);

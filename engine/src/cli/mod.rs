@@ -6,6 +6,8 @@ use clap::{Parser, Subcommand};
 
 pub mod attenuation;
 pub mod bench;
+pub mod check;
+pub mod run;
 pub mod materials;
 pub mod report;
 pub mod spectrum;
@@ -24,6 +26,10 @@ struct Cli {
 
 #[derive(Subcommand, Debug)]
 enum Command {
+    /// Run decks (batch); every sweep combination is its own job.
+    Run(run::Args),
+    /// Validate decks and print them resolved, without running.
+    Check(check::Args),
     /// List the built-in materials library.
     Materials(materials::Args),
     /// Attenuation and energy-absorption coefficients of a material.
@@ -47,6 +53,8 @@ pub fn main() -> i32 {
         }
     };
     let result = match cli.command {
+        Command::Run(a) => run::run(a),
+        Command::Check(a) => check::run(a),
         Command::Materials(a) => materials::run(a),
         Command::Attenuation(a) => attenuation::run(a),
         Command::Spectrum(a) => spectrum::run(a),

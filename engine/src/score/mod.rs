@@ -97,8 +97,8 @@ pub enum Scorer {
         /// Count photons leaving in every direction, not only forward.
         all_directions: bool,
         /// The tally: bins `0..bins` uncollided source photons, `bins..2·bins` scattered photons
-        /// (source or fluorescence), `2·bins..3·bins` unscattered fluorescence photons (photons per
-        /// history).
+        /// (source or fluorescence), `2·bins..3·bins` unscattered fluorescence photons,
+        /// `3·bins..4·bins` all of them (photons per history).
         tally: Tally,
     },
 }
@@ -126,7 +126,7 @@ impl Scorer {
 
     /// Spectrum of escaping photons in `bins` bins of `de_kev` from `e0_kev`.
     pub fn transmitted_spectrum(e0_kev: f64, de_kev: f64, bins: usize, all_directions: bool) -> Self {
-        Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, all_directions, tally: Tally::new(3 * bins) }
+        Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, all_directions, tally: Tally::new(4 * bins) }
     }
 
     /// The tally of any scorer.
@@ -197,6 +197,7 @@ impl Scorer {
                             (_, false) => *bins,
                         };
                         tally.add(offset + f as usize, photon.weight, history);
+                        tally.add(3 * *bins + f as usize, photon.weight, history);
                     }
                 }
             }

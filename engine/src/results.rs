@@ -1,0 +1,200 @@
+//! A run's scores as a result file (layout: `output/LAYOUT.md`).
+//!
+//! Every value is a mean per source history with its 1σ standard error in `<name>_sigma`.
+//! Energy deposited is kerma-approximation energy (secondary electrons deposit locally).
+
+use crate::output::{Dataset, Group, ResultFile};
+use crate::score::{counts, Scorer, JOULE_PER_KEV};
+use crate::setup::SetupInfo;
+use crate::transport::RunResult;
+
+/// Identification and bookkeeping of a run for the root attributes.
+#[derive(Debug, Clone)]
+pub struct RunMeta {
+    /// The deck text exactly as read.
+    pub deck_text: String,
+    /// The resolved deck as TOML.
+    pub resolved_deck: String,
+    /// Seed used.
+    pub seed: u64,
+    /// Histories asked for.
+    pub histories_requested: u64,
+    /// Threads used.
+    pub threads: usize,
+    /// Start of the run, RFC 3339 UTC.
+    pub start_time: String,
+    /// "complete" or "partial".
+    pub completion: String,
+    /// Swept parameters of this combination (key path, value as text).
+    pub sweep: Vec<(String, String)>,
+}
+
+/// The version control revision the binary was built from, or "unknown".
+pub fn git_commit() -> &'static str {
+    option_env!("DOSEMILL_GIT_COMMIT").unwrap_or("unknown")
+}
+
+/// Now, as RFC 3339 UTC (second resolution).
+pub fn now_rfc3339() -> String {
+    let secs = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0);
+    let days = (secs / 86_400) as i64;
+    let rem = secs % 86_400;
+    // Civil date from days since 1970-01-01 (H. Hinnant's algorithm).
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let y = yoe + era * 400;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = if m <= 2 { y + 1 } else { y };
+    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", rem / 3600, (rem % 3600) / 60, rem % 60)
+}
+
+fn pair(g: &mut Group, name: &str, shape: &[usize], mean: Vec<f64>, sigma: Vec<f64>, units: &str) {
+    g.add_dataset(Dataset::f64_nd(name, shape, mean, units));
+    g.add_dataset(Dataset::f64_nd(&format!("{name}_sigma"), shape, sigma, units));
+}
+
+fn edges(n: usize, start: f64, width: f64) -> Vec<f64> {
+    (0..=n).map(|i| start + i as f64 * width).collect()
+}
+
+/// Mean density (g/cm³) over [z0, z1] of a slab stack described by `info.layers`.
+fn mean_density(info: &SetupInfo, z0: f64, z1: f64) -> f64 {
+    let mut mass = 0.0;
+    let mut covered = 0.0;
+    for (_, _, rho, a, b) in &info.layers {
+        let overlap = (b.min(z1) - a.max(z0)).max(0.0);
+        mass += overlap * rho;
+        covered += overlap;
+    }
+    mass += ((z1 - z0) - covered).max(0.0) * info.world_density_g_cm3;
+    mass / (z1 - z0)
+}
+
+/// The result file of a run.
+pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultFile {
+    let mut f = ResultFile::new();
+    let prov = dosemill_xsdata::elements().provenance();
+    f.set_attr("dosemill_version", env!("CARGO_PKG_VERSION"));
+    f.set_attr("git_commit", git_commit());
+    f.set_attr("data_source", prov.source.as_str());
+    f.set_attr("data_tables_sha256", prov.tables_sha256.as_str());
+    f.set_attr("data_generator_sha256", prov.generator_sha256.as_str());
+    f.set_attr("seed", meta.seed);
+    f.set_attr("histories", run.histories);
+    f.set_attr("histories_requested", meta.histories_requested);
+    f.set_attr("threads", meta.threads as u64);
+    f.set_attr("wall_time_s", run.wall_time_s);
+    f.set_attr("start_time", meta.start_time.as_str());
+    f.set_attr("completion", meta.completion.as_str());
+    f.set_attr("deck_text", meta.deck_text.as_str());
+    f.set_attr("resolved_deck", meta.resolved_deck.as_str());
+    f.set_attr(
+        "model_limits",
+        "Secondary electrons are not transported: their energy is deposited where they are set in motion (kerma approximation), valid where regions are much larger than electron ranges (below about 300 kV). Compton Doppler broadening is not modelled. Research use; results need review by a qualified medical physicist.",
+    );
+    for (k, v) in &meta.sweep {
+        f.set_attr(&format!("sweep.{k}"), v.as_str());
+    }
+    let n = run.histories;
+
+    if let Some((lo, hi, w)) = &info.spectrum {
+        let mut g = Group::with_kind("source_spectrum", "source_spectrum");
+        g.add_dataset(Dataset::f64_1d("lo_kev", lo.clone(), "keV"));
+        g.add_dataset(Dataset::f64_1d("hi_kev", hi.clone(), "keV"));
+        g.add_dataset(Dataset::f64_1d("probability", w.clone(), "1"));
+        for (name, value, units) in &info.beam_quality {
+            g.set_attr(name, *value);
+            g.set_attr(&format!("{name}_units"), units.as_str());
+        }
+        f.add_group(g);
+    }
+    if !info.layers.is_empty() {
+        let mut g = Group::with_kind("geometry", "layers");
+        g.set_attr("names", info.layers.iter().map(|l| l.0.clone()).collect::<Vec<_>>().join(","));
+        g.set_attr("materials", info.layers.iter().map(|l| l.1.clone()).collect::<Vec<_>>().join(","));
+        g.add_dataset(Dataset::f64_1d("density", info.layers.iter().map(|l| l.2).collect(), "g/cm3"));
+        let mut z: Vec<f64> = info.layers.iter().map(|l| l.3).collect();
+        z.push(info.layers.last().unwrap().4);
+        g.add_dataset(Dataset::f64_1d("z_planes", z, "cm"));
+        f.add_group(g);
+    }
+
+    for (s, si) in run.scorers.iter().zip(&info.scores) {
+        let (mean, sigma) = s.tally().mean_and_sigma(n);
+        let group = match (s, &si.kind) {
+            (Scorer::RegionEnergy { .. }, _) => {
+                let mut g = Group::with_kind(&si.name, "layer_energy");
+                g.set_attr("labels", info.layers.iter().map(|l| l.0.clone()).chain(["world".to_string()]).collect::<Vec<_>>().join(","));
+                pair(&mut g, "energy", &[mean.len()], mean, sigma, "keV");
+                g
+            }
+            (Scorer::DepthEnergy { z0_cm, dz_cm, .. }, _) => {
+                let mut g = Group::with_kind(&si.name, "depth_dose");
+                let nb = mean.len();
+                let z = edges(nb, *z0_cm, *dz_cm);
+                let conv: Vec<f64> = (0..nb)
+                    .map(|i| {
+                        let rho = mean_density(info, z[i], z[i + 1]);
+                        if rho > 0.0 { JOULE_PER_KEV * 1e3 / (rho * dz_cm) } else { 0.0 }
+                    })
+                    .collect();
+                let dose: Vec<f64> = mean.iter().zip(&conv).map(|(m, c)| m * c).collect();
+                let dose_s: Vec<f64> = sigma.iter().zip(&conv).map(|(m, c)| m * c).collect();
+                pair(&mut g, "energy", &[nb], mean, sigma, "keV");
+                pair(&mut g, "dose_per_fluence", &[nb], dose.clone(), dose_s.clone(), "Gy cm2");
+                g.add_dataset(Dataset::f64_1d("depth_edges", z.clone(), "cm").with_attr("label", "depth"));
+                for name in ["energy", "energy_sigma", "dose_per_fluence", "dose_per_fluence_sigma"] {
+                    g.attach_axis(name, 0, "depth_edges", &z, "cm").expect("consistent axis layout");
+                }
+                g.set_attr(
+                    "normalisation",
+                    "energy: keV deposited per source history in each depth bin over the whole lateral extent; dose_per_fluence: that energy per unit mass per unit depth, i.e. the dose on the axis of a broad beam of unit fluence (Gy cm2), kerma approximation",
+                );
+                if let Some(a) = info.field_area_cm2 {
+                    let per: Vec<f64> = dose.iter().map(|d| d / a).collect();
+                    let per_s: Vec<f64> = dose_s.iter().map(|d| d / a).collect();
+                    pair(&mut g, "dose", &[nb], per, per_s, "Gy");
+                    g.attach_axis("dose", 0, "depth_edges", &z, "cm").expect("consistent axis layout");
+                    g.attach_axis("dose_sigma", 0, "depth_edges", &z, "cm").expect("consistent axis layout");
+                    g.set_attr("field_area_cm2", a);
+                }
+                g
+            }
+            (Scorer::Escape { .. }, _) => {
+                let mut g = Group::with_kind(&si.name, "escape");
+                g.set_attr("labels", "forward,backward");
+                pair(&mut g, "energy", &[2], mean[..2].to_vec(), sigma[..2].to_vec(), "keV");
+                pair(&mut g, "photons", &[2], mean[2..].to_vec(), sigma[2..].to_vec(), "1");
+                g
+            }
+            (Scorer::Interactions { .. }, _) => {
+                let mut g = Group::with_kind(&si.name, "interaction_counts");
+                g.set_attr("labels", counts::LABELS.join(","));
+                pair(&mut g, "counts", &[mean.len()], mean, sigma, "1");
+                g
+            }
+            (Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, .. }, _) => {
+                let mut g = Group::with_kind(&si.name, "spectrum");
+                let b = *bins;
+                for (k, name) in ["uncollided", "scattered", "fluorescence", "total"].iter().enumerate() {
+                    pair(&mut g, name, &[b], mean[k * b..(k + 1) * b].to_vec(), sigma[k * b..(k + 1) * b].to_vec(), "1");
+                }
+                let e = edges(b, *e0_kev, *de_kev);
+                g.add_dataset(Dataset::f64_1d("energy_edges", e.clone(), "keV").with_attr("label", "energy"));
+                for name in ["uncollided", "scattered", "fluorescence", "total"] {
+                    g.attach_axis(name, 0, "energy_edges", &e, "keV").expect("consistent axis layout");
+                    g.attach_axis(&format!("{name}_sigma"), 0, "energy_edges", &e, "keV").expect("consistent axis layout");
+                }
+                g.set_attr("normalisation", "photons leaving the downstream side (+z) per source history in each energy bin");
+                g
+            }
+        };
+        f.add_group(group);
+    }
+    f
+}

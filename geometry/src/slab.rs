@@ -21,6 +21,7 @@ use serde::{Deserialize, Serialize};
 
 /// One layer of a slab stack.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Layer {
     /// Index into the engine's material list.
     pub material: u16,
@@ -30,8 +31,9 @@ pub struct Layer {
     pub thickness_cm: f64,
 }
 
-/// Lateral extent of the layers.
+/// Lateral extent of the layers. In TOML: `"infinite"` or `{ box = { half_x_cm = …, half_y_cm = … } }`.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case", deny_unknown_fields)]
 pub enum Lateral {
     /// The layers fill the world box laterally (infinite slabs clipped by the world).
     Infinite,

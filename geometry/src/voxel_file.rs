@@ -401,7 +401,10 @@ pub fn write_hdf5_voxels(
             .with_shape(&shape);
     }
     // Encode straight into the temporary file rather than into a byte vector first.
-    write_atomic(path, overwrite, |w| b.finish_to(w).map_err(|e| std::io::Error::other(e.to_string())))
+    write_atomic(path, overwrite, |w| {
+        b.finish_to(w)
+            .map_err(|e| std::io::Error::other(e.to_string()))
+    })
 }
 
 /// Reads a voxel grid from an HDF5 file in the layout of [`hdf5_names`]. The file is read

@@ -30,8 +30,10 @@
 //! * **Characteristic lines.** K lines for every anode, L lines for tungsten only, produced
 //!   only when the electron energy exceeds the edge. Vacancies come from the Worthington &
 //!   Tomlin (1956) empirical ionisation cross section integrated along the same path (with the
-//!   same backscatter loss), with L1→L2/L3 Coster–Kronig transfer; each line is attenuated from
-//!   its depth of production. Fluorescence yields, line energies and line shares come from the
+//!   same backscatter loss; direct excitation), plus photo-excitation by the anode's own
+//!   continuum above the edge (indirect excitation; continuum treated as a surface source),
+//!   with L1→L2/L3 Coster–Kronig transfer; each line is attenuated from its depth of
+//!   production. Fluorescence yields, line energies and line shares come from the
 //!   project's element tables.
 //! * **Ripple.** V(φ) = kVp·(1 − r + r·|cos φ|) over a period, r = ripple/100, constant tube
 //!   current; the spectrum is the average of constant-potential spectra over 64 instants.
@@ -52,15 +54,14 @@
 //! calibration. Expect the absolute output to be uncertain by about ±30–40 % (Kramers'
 //! constant ±30 %, Archard's simple diffusion picture, no heel effect, real anodes roughen
 //! and lose output with use); spectral shapes and HVLs are much better determined.
-//! Characteristic intensities are uncertain by roughly ±50 % (non-relativistic cross section,
-//! no photo-excitation by the continuum).
+//! Characteristic intensities are uncertain by roughly ±50 % (non-relativistic ionisation cross
+//! section, simplified indirect excitation).
 //!
 //! # Limits
 //!
 //! Research use only. Archard's diffusion picture of electron transport (no Monte Carlo
 //! electron transport); isotropic emission (no heel effect along the anode–cathode axis, no
-//! off-axis variation); no fluorescence excited in the anode by its own continuum; M lines
-//! are ignored; radiative energy loss of the electrons is left out of their slowing (about
+//! off-axis variation); M lines are ignored; K-shell vacancies do not feed L vacancies; radiative energy loss of the electrons is left out of their slowing (about
 //! 1 % of the loss below 300 keV).
 //!
 //! # Sampling convention

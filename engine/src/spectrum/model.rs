@@ -250,19 +250,59 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
         }
         // Characteristic lines: vacancies per electron from the Worthington–Tomlin cross
         // section along the Thomson–Whiddington path, ds = 2T dT / C, each line attenuated from
-        // the depth at which its vacancy was made.
+        // the depth at which its vacancy was made (direct excitation) ...
         let n_atoms = medium.atoms_per_g();
+        // ... plus photo-excitation by the anode's own continuum (indirect excitation): the
+        // continuum is made much closer to the surface than its absorption length above an
+        // edge, so it is treated as a surface source; the half emitted inwards is absorbed at
+        // depth z with density (μ/2)·E1(μz), and a line photon made there leaves along the
+        // central ray with exp(−λz), λ = μ_line/sin θ. ∫ (μ/2) E1(μz) e^{−λz} dz =
+        // (μ/2λ) ln(1 + λ/μ). Precomputed on an energy grid: (weight × photons per keV ×
+        // photoabsorption shares per shell, μ/ρ).
+        let mut indirect_grid: Vec<([f64; 4], f64)> = Vec::new();
+        if absorbing {
+            if let Some(lowest_edge) = shells.iter().map(|s| s.edge_kev).filter(|e| *e < t0).reduce(f64::min) {
+                let mut cuts = vec![lowest_edge];
+                cuts.extend(edges_kev.iter().copied().filter(|e| *e > lowest_edge && *e < t0));
+                cuts.push(t0);
+                for w in cuts.windows(2) {
+                    let pieces = ((w[1] - w[0]) / 2.0).ceil().max(1.0) as usize;
+                    let step = (w[1] - w[0]) / pieces as f64;
+                    for p in 0..pieces {
+                        let (a, b) = (w[0] + p as f64 * step, w[0] + (p + 1) as f64 * step);
+                        for (x, wt) in gl_e.nodes.iter().zip(&gl_e.weights) {
+                            let e = 0.5 * (a + b) + 0.5 * (b - a) * x;
+                            let n_e = 2.0 * KRAMERS_K_PER_KEV * medium.z / e * depth.integral(&gl_t, e, 0.0, |_| 1.0);
+                            let total = element.total_cm2_g(e);
+                            let photo_share = element.photo_cm2_g(e) / total;
+                            let shares = element.photo_shell_shares(e).map(|x| x * photo_share * n_e * wt * 0.5 * (b - a));
+                            indirect_grid.push((shares, total));
+                        }
+                    }
+                }
+            }
+        }
         let l1 = shells.iter().find(|x| x.name == "L1");
         let l2 = shells.iter().find(|x| x.name == "L2");
         let mut idx = 0;
         for s in &shells {
             for l in &s.lines {
                 let mu = anode_mu_rho(l.kev);
+                let lambda = mu / theta.sin();
                 let vac = |sh: Option<&ShellInfo>| match sh {
                     Some(sh) => {
                         let per_kev = |t: f64| n_atoms * ionisation_cm2(t, sh.edge_kev, sh.electrons) * 2.0 * t / c_tw;
                         if absorbing {
-                            depth.integral(&gl_t, sh.edge_kev.min(t0), mu, per_kev)
+                            let direct = depth.integral(&gl_t, sh.edge_kev.min(t0), mu, per_kev);
+                            let indirect: f64 = indirect_grid
+                                .iter()
+                                .map(|(shares, mu_e)| {
+                                    let r = lambda / mu_e;
+                                    let escape = if r < 1e-8 { 0.5 } else { 0.5 * r.ln_1p() / r };
+                                    shares[sh.index] * escape
+                                })
+                                .sum();
+                            direct + indirect
                         } else {
                             gl_ideal.integrate(sh.edge_kev.min(t0), t0, per_kev)
                         }

@@ -82,7 +82,7 @@ pub mod quality;
 mod tube;
 
 pub use model::{compute_spectrum, SpectrumOptions};
-pub use quality::{air_kerma_ugy_per_mas, hvls_mm, solve_added_filtration, BeamQuality};
+pub use quality::{air_kerma_ugy_per_mas, hvls_mm, solve_added_filtration, solve_added_filtration_for, BeamQuality};
 pub use tube::{Anode, Filter, InherentFiltration, Tube, KVP_MAX, KVP_MIN};
 
 use serde::Serialize;
@@ -131,7 +131,7 @@ pub enum SpectrumError {
     #[error("interaction data: {0}")]
     Data(String),
     /// The filtration solver could not reach the target.
-    #[error("no thickness of `{material}` up to {max_mm} mm gives a first HVL of {target_mm_al} mm Al (unfiltered HVL {start_mm_al:.3} mm Al)")]
+    #[error("no added thickness of `{material}` up to {max_mm} mm gives a first HVL of {target_mm_al} mm (without it the HVL is already {start_mm_al:.3} mm; a lower target needs less filtration on the tube)")]
     TargetUnreachable {
         /// Filter material.
         material: String,

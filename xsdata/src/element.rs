@@ -191,6 +191,11 @@ impl Interaction {
 }
 
 /// Interaction data of one element.
+///
+/// The lookups (`photo_cm2_g`, `interaction`, …) take energies in keV and never fail: energies
+/// outside 1–800 keV are clamped to the range, so callers validate energies once, up front, with
+/// [`Element::check_energy`] (or use the `try_` variants, which return
+/// [`XsError::EnergyOutOfRange`]). They allocate nothing and do not search: see the module docs.
 #[derive(Debug, Clone)]
 pub struct Element {
     /// Atomic number.
@@ -204,6 +209,9 @@ pub struct Element {
     ln_nodes: Vec<f64>,
     /// 1 / (ln E[i+1] − ln E[i]) per interval; 0 for the zero-width interval of an edge.
     inv_dln: Vec<f64>,
+    photo: Vec<f64>,
+    coherent: Vec<f64>,
+    incoherent: Vec<f64>,
     ln_photo: Vec<f64>,
     ln_coherent: Vec<f64>,
     ln_incoherent: Vec<f64>,
@@ -332,13 +340,32 @@ impl Element {
     ///
     /// Derived from the jump ratios J of the photo cross section at each edge: a shell whose
     /// edge lies below `kev` takes 1 − 1/J of what the deeper shells leave; constant between
-    /// edges. At an edge energy, the shares above the edge.
+    /// edges. At an edge energy, the shares above the edge. A shell's share starts at the photo
+    /// data's jump ([`Element::edges_kev`]), which may lie a few eV below the binding energy
+    /// [`ShellData::edge_kev`]: a photoelectron energy E − edge_kev must be clamped at 0.
     pub fn photo_shell_shares(&self, kev: f64) -> [f64; 4] {
         self.interaction(kev).photo_shell_shares
     }
     /// Energy nodes of this element's cross-section grid (keV), ascending; each edge appears twice.
     pub fn nodes_kev(&self) -> &[f64] {
         &self.nodes_kev
+    }
+    /// Photoelectric cross section (cm²/g) at the nodes of [`Element::nodes_kev`] (at an edge:
+    /// the value below, then the value above).
+    pub fn photo_nodes_cm2_g(&self) -> &[f64] {
+        &self.photo
+    }
+    /// Coherent cross section (cm²/g) at the nodes of [`Element::nodes_kev`].
+    pub fn coherent_nodes_cm2_g(&self) -> &[f64] {
+        &self.coherent
+    }
+    /// Incoherent cross section (cm²/g) at the nodes of [`Element::nodes_kev`].
+    pub fn incoherent_nodes_cm2_g(&self) -> &[f64] {
+        &self.incoherent
+    }
+    /// Shell shares (K, L1, L2, L3) at the nodes of [`Element::nodes_kev`].
+    pub fn photo_shell_share_nodes(&self) -> &[[f64; 4]] {
+        &self.shares
     }
     /// All absorption edges inside the data range (keV), ascending (K, L, M, … as tabulated).
     ///
@@ -372,8 +399,15 @@ impl Element {
         k
     }
 
+    /// F or S at x, clamped to [0, Z] (log-log interpolation between nodes equal to Z could
+    /// exceed Z in the last bit).
     #[inline]
     fn scatter_value(&self, f: &ScatterFunction, x: f64) -> f64 {
+        self.scatter_interpolate(f, x).clamp(0.0, self.z as f64)
+    }
+
+    #[inline]
+    fn scatter_interpolate(&self, f: &ScatterFunction, x: f64) -> f64 {
         let n = self.x_nodes.len();
         if x <= 0.0 {
             return f.values[0];
@@ -604,6 +638,9 @@ impl ElementTable {
                 ln_photo: photo.iter().map(|v| v.ln()).collect(),
                 ln_coherent: coherent.iter().map(|v| v.ln()).collect(),
                 ln_incoherent: incoherent.iter().map(|v| v.ln()).collect(),
+                photo,
+                coherent,
+                incoherent,
                 nodes_kev,
                 ln_nodes,
                 inv_dln,
@@ -667,6 +704,18 @@ pub fn embedded_table_bytes() -> &'static [u8] {
 }
 
 /// The embedded element tables (parsed on first use, then shared).
+///
+/// ```
+/// use dosemill_xsdata::{elements, Shell};
+/// let pb = elements().by_symbol("Pb").unwrap();
+/// let at_100_kev = pb.interaction(100.0);
+/// assert!(at_100_kev.total_cm2_g() > 5.0 && at_100_kev.photo_shell_shares[0] > 0.7);
+/// let k_alpha1 = pb.line(Shell::K, "KL3").unwrap();
+/// assert!((k_alpha1.kev - 74.97).abs() < 0.01);
+/// ```
+///
+/// # Panics
+/// Only if the embedded files are damaged (the build's own data; a test parses them).
 pub fn elements() -> &'static ElementTable {
     static TABLE: OnceLock<ElementTable> = OnceLock::new();
     TABLE.get_or_init(|| {

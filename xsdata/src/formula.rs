@@ -82,7 +82,10 @@ impl Formula {
         parse_sequence(text, &chars, &mut pos, 0, 1.0, &mut counts)?;
         if pos != chars.len() {
             // parse_sequence at depth 0 only stops early on a stray ')'.
-            return Err(FormulaError::Unbalanced { formula: text.to_string(), column: pos + 1 });
+            return Err(FormulaError::Unbalanced {
+                formula: text.to_string(),
+                column: pos + 1,
+            });
         }
         let atoms: Vec<(u32, f64)> = counts
             .iter()
@@ -93,7 +96,10 @@ impl Formula {
         if atoms.is_empty() {
             return Err(FormulaError::Empty);
         }
-        Ok(Formula { text: text.to_string(), atoms })
+        Ok(Formula {
+            text: text.to_string(),
+            atoms,
+        })
     }
 
     /// The formula as written.
@@ -119,7 +125,12 @@ impl Formula {
         let m = self.molar_mass_g_mol();
         self.atoms
             .iter()
-            .map(|&(z, n)| (z, n * atomic_weight(z).expect("parsed formulas hold only Z 1..=98") / m))
+            .map(|&(z, n)| {
+                (
+                    z,
+                    n * atomic_weight(z).expect("parsed formulas hold only Z 1..=98") / m,
+                )
+            })
             .collect()
     }
 }
@@ -157,10 +168,17 @@ fn parse_sequence(
             let mut inner = [0.0f64; 99];
             parse_sequence(text, chars, pos, depth + 1, 1.0, &mut inner)?;
             if *pos >= chars.len() || chars[*pos] != ')' {
-                return Err(FormulaError::Unbalanced { formula: text.to_string(), column: open + 1 });
+                return Err(FormulaError::Unbalanced {
+                    formula: text.to_string(),
+                    column: open + 1,
+                });
             }
             if *pos == open + 1 {
-                return Err(FormulaError::Unexpected { formula: text.to_string(), ch: ')', column: *pos + 1 });
+                return Err(FormulaError::Unexpected {
+                    formula: text.to_string(),
+                    ch: ')',
+                    column: *pos + 1,
+                });
             }
             *pos += 1;
             let n = parse_count(text, chars, pos)?;
@@ -169,14 +187,25 @@ fn parse_sequence(
             }
         } else if c == ')' {
             if depth == 0 {
-                return Err(FormulaError::Unbalanced { formula: text.to_string(), column: *pos + 1 });
+                return Err(FormulaError::Unbalanced {
+                    formula: text.to_string(),
+                    column: *pos + 1,
+                });
             }
             if *pos == start {
-                return Err(FormulaError::Unexpected { formula: text.to_string(), ch: c, column: *pos + 1 });
+                return Err(FormulaError::Unexpected {
+                    formula: text.to_string(),
+                    ch: c,
+                    column: *pos + 1,
+                });
             }
             return Ok(());
         } else {
-            return Err(FormulaError::Unexpected { formula: text.to_string(), ch: c, column: *pos + 1 });
+            return Err(FormulaError::Unexpected {
+                formula: text.to_string(),
+                ch: c,
+                column: *pos + 1,
+            });
         }
     }
     Ok(())
@@ -193,11 +222,16 @@ fn parse_count(text: &str, chars: &[char], pos: &mut usize) -> Result<f64, Formu
     let s: String = chars[start..*pos].iter().collect();
     match s.parse::<f64>() {
         Ok(n) if n > 0.0 && n.is_finite() => Ok(n),
-        _ => Err(FormulaError::BadCount { formula: text.to_string(), count: s, column: start + 1 }),
+        _ => Err(FormulaError::BadCount {
+            formula: text.to_string(),
+            count: s,
+            column: start + 1,
+        }),
     }
 }
 
 /// Chemical symbols, index = Z - 1, for Z = 1..=98.
+#[rustfmt::skip]
 pub const SYMBOLS: [&str; 98] = [
     "H", "He", "Li", "Be", "B", "C", "N", "O", "F", "Ne", "Na", "Mg", "Al", "Si", "P", "S", "Cl", "Ar",
     "K", "Ca", "Sc", "Ti", "V", "Cr", "Mn", "Fe", "Co", "Ni", "Cu", "Zn", "Ga", "Ge", "As", "Se", "Br",
@@ -214,6 +248,7 @@ pub const SYMBOLS: [&str; 98] = [
 /// Elements without a standard atomic weight (no stable isotope: Tc, Pm, Po, At, Rn, Fr, Ra, Ac,
 /// Np–Cf) carry the mass number of a long-lived isotope in brackets in the IUPAC table; that mass
 /// number is used here (a convention: other libraries pick other isotopes for some of them).
+#[rustfmt::skip]
 pub const ATOMIC_WEIGHTS_G_MOL: [f64; 98] = [
     1.008, 4.002602, 6.94, 9.0121831, 10.81, 12.011, 14.007, 15.999, 18.998403163, 20.1797, // 1–10
     22.98976928, 24.305, 26.9815385, 28.085, 30.973761998, 32.06, 35.45, 39.948, 39.0983, 40.078, // 11–20
@@ -238,12 +273,18 @@ pub fn atomic_weight(z: u32) -> Option<f64> {
 
 /// Atomic number of a chemical symbol (exact case, e.g. "Pb"); `None` if unknown.
 pub fn z_of_symbol(symbol: &str) -> Option<u32> {
-    SYMBOLS.iter().position(|&s| s == symbol).map(|i| i as u32 + 1)
+    SYMBOLS
+        .iter()
+        .position(|&s| s == symbol)
+        .map(|i| i as u32 + 1)
 }
 
 /// Atomic number of a chemical symbol, ignoring case ("pb", "PB" → 82); `None` if unknown.
 pub fn z_of_symbol_ignore_case(symbol: &str) -> Option<u32> {
-    SYMBOLS.iter().position(|&s| s.eq_ignore_ascii_case(symbol)).map(|i| i as u32 + 1)
+    SYMBOLS
+        .iter()
+        .position(|&s| s.eq_ignore_ascii_case(symbol))
+        .map(|i| i as u32 + 1)
 }
 
 /// Chemical symbol of element `z` (1..=98); `None` outside that range.
@@ -273,12 +314,34 @@ mod tests {
 
     #[test]
     fn errors_name_the_column() {
-        assert!(matches!(Formula::parse("H2Xx"), Err(FormulaError::UnknownElement { column: 3, .. })));
-        assert!(matches!(Formula::parse("Ca(OH"), Err(FormulaError::Unbalanced { column: 3, .. })));
-        assert!(matches!(Formula::parse("CaOH)2"), Err(FormulaError::Unbalanced { column: 5, .. })));
-        assert!(matches!(Formula::parse("H0O"), Err(FormulaError::BadCount { .. })));
-        assert!(matches!(Formula::parse("h2o"), Err(FormulaError::Unexpected { ch: 'h', column: 1, .. })));
-        assert!(matches!(Formula::parse("()"), Err(FormulaError::Unexpected { .. })));
+        assert!(matches!(
+            Formula::parse("H2Xx"),
+            Err(FormulaError::UnknownElement { column: 3, .. })
+        ));
+        assert!(matches!(
+            Formula::parse("Ca(OH"),
+            Err(FormulaError::Unbalanced { column: 3, .. })
+        ));
+        assert!(matches!(
+            Formula::parse("CaOH)2"),
+            Err(FormulaError::Unbalanced { column: 5, .. })
+        ));
+        assert!(matches!(
+            Formula::parse("H0O"),
+            Err(FormulaError::BadCount { .. })
+        ));
+        assert!(matches!(
+            Formula::parse("h2o"),
+            Err(FormulaError::Unexpected {
+                ch: 'h',
+                column: 1,
+                ..
+            })
+        ));
+        assert!(matches!(
+            Formula::parse("()"),
+            Err(FormulaError::Unexpected { .. })
+        ));
         assert_eq!(Formula::parse(""), Err(FormulaError::Empty));
     }
 

@@ -5,7 +5,7 @@
 //! case-insensitively too (`al`, `AL` → aluminium). An unknown name gives
 //! [`MaterialError::UnknownMaterial`] listing the nearest valid names.
 //!
-//! ```no_run
+//! ```
 //! let water = dosemill_xsdata::library::lookup("water").unwrap();
 //! let al = dosemill_xsdata::library::lookup("Al").unwrap();
 //! assert_eq!(al.density_g_cm3(), 2.699);
@@ -47,10 +47,16 @@ impl LibraryEntry {
     /// Build the material.
     pub fn material(&self) -> Material {
         let m = match self.composition {
-            Composition::Formula(f) => Material::from_formula(self.name, f, self.density_g_cm3, self.source),
-            Composition::Fractions(w) => {
-                Material::from_mass_fractions_z(self.name, self.density_g_cm3, w, false, self.source)
+            Composition::Formula(f) => {
+                Material::from_formula(self.name, f, self.density_g_cm3, self.source)
             }
+            Composition::Fractions(w) => Material::from_mass_fractions_z(
+                self.name,
+                self.density_g_cm3,
+                w,
+                false,
+                self.source,
+            ),
         };
         m.expect("library entries are valid (checked by tests)")
     }
@@ -59,6 +65,7 @@ impl LibraryEntry {
 const NIST_ELEMENT: &str = "pure element; density as listed in NIST SRD 126 (from memory)";
 
 /// The named materials (pure elements by symbol are in addition to these).
+#[rustfmt::skip]
 pub static LIBRARY: &[LibraryEntry] = &[
     LibraryEntry {
         name: "water",
@@ -263,6 +270,7 @@ pub fn library() -> &'static [LibraryEntry] {
 /// Standard densities of the elements (g/cm³) at room temperature; gases at 20 °C and 1 atm.
 /// Index = Z − 1. Values as listed in NIST SRD 126 / CRC Handbook (from memory); `None` where no
 /// bulk density is established (At, Fr).
+#[rustfmt::skip]
 pub static ELEMENT_DENSITY_G_CM3: [Option<f64>; 98] = [
     Some(8.375e-5), Some(1.663e-4), Some(0.534), Some(1.848), Some(2.37), Some(2.0), // H–C (C: graphite, as NIST)
     Some(1.165e-3), Some(1.332e-3), Some(1.580e-3), Some(8.385e-4), // N–Ne
@@ -282,13 +290,16 @@ pub static ELEMENT_DENSITY_G_CM3: [Option<f64>; 98] = [
 
 /// The pure element `symbol` (case-insensitive) at its standard density.
 pub fn element_material(symbol: &str) -> Result<Material, MaterialError> {
-    let z = formula::z_of_symbol_ignore_case(symbol).ok_or_else(|| MaterialError::UnknownMaterial {
-        name: symbol.to_string(),
-        suggestions: nearest_names(symbol, 5),
-    })?;
+    let z =
+        formula::z_of_symbol_ignore_case(symbol).ok_or_else(|| MaterialError::UnknownMaterial {
+            name: symbol.to_string(),
+            suggestions: nearest_names(symbol, 5),
+        })?;
     let sym = formula::symbol_of_z(z).expect("z in range");
-    let density = ELEMENT_DENSITY_G_CM3[z as usize - 1]
-        .ok_or_else(|| MaterialError::NoStandardDensity { symbol: sym.to_string() })?;
+    let density =
+        ELEMENT_DENSITY_G_CM3[z as usize - 1].ok_or_else(|| MaterialError::NoStandardDensity {
+            symbol: sym.to_string(),
+        })?;
     Material::from_mass_fractions_z(sym, density, &[(z, 1.0)], false, NIST_ELEMENT)
 }
 
@@ -297,14 +308,18 @@ pub fn element_material(symbol: &str) -> Result<Material, MaterialError> {
 pub fn lookup(name: &str) -> Result<Material, MaterialError> {
     let key = name.trim();
     for e in LIBRARY {
-        if e.name.eq_ignore_ascii_case(key) || e.aliases.iter().any(|a| a.eq_ignore_ascii_case(key)) {
+        if e.name.eq_ignore_ascii_case(key) || e.aliases.iter().any(|a| a.eq_ignore_ascii_case(key))
+        {
             return Ok(e.material());
         }
     }
     if formula::z_of_symbol_ignore_case(key).is_some() {
         return element_material(key);
     }
-    Err(MaterialError::UnknownMaterial { name: name.to_string(), suggestions: nearest_names(key, 5) })
+    Err(MaterialError::UnknownMaterial {
+        name: name.to_string(),
+        suggestions: nearest_names(key, 5),
+    })
 }
 
 /// The `n` valid names (library names, aliases and element symbols) nearest to `name` by edit
@@ -324,7 +339,11 @@ pub fn nearest_names(name: &str, n: usize) -> Vec<String> {
     for s in formula::SYMBOLS {
         // Symbols only when the query is short: a long word is never "near" a 1–2 letter symbol.
         if key.len() <= 3 {
-            cands.push((edit_distance(&key, &s.to_ascii_lowercase()), order, s.to_string()));
+            cands.push((
+                edit_distance(&key, &s.to_ascii_lowercase()),
+                order,
+                s.to_string(),
+            ));
             order += 1;
         }
     }
@@ -358,11 +377,18 @@ mod tests {
         for e in LIBRARY {
             if let Composition::Fractions(w) = e.composition {
                 let s: f64 = w.iter().map(|c| c.1).sum();
-                assert!((s - 1.0).abs() <= 1e-6, "{}: published fractions sum to {s}", e.name);
+                assert!(
+                    (s - 1.0).abs() <= 1e-6,
+                    "{}: published fractions sum to {s}",
+                    e.name
+                );
             }
             let m = e.material();
             assert_eq!(m.name(), e.name);
-            assert!(e.name.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_'));
+            assert!(e
+                .name
+                .chars()
+                .all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_'));
         }
     }
 
@@ -394,13 +420,18 @@ mod tests {
         for s in ["Cu", "W", "Mo", "Rh", "Be", "Sn", "Pb", "Ag"] {
             assert!(lookup(s).is_ok(), "{s}");
         }
-        assert!(matches!(lookup("At"), Err(MaterialError::NoStandardDensity { .. })));
+        assert!(matches!(
+            lookup("At"),
+            Err(MaterialError::NoStandardDensity { .. })
+        ));
     }
 
     #[test]
     fn unknown_name_suggests_nearest() {
         match lookup("watr") {
-            Err(MaterialError::UnknownMaterial { suggestions, .. }) => assert_eq!(suggestions[0], "water"),
+            Err(MaterialError::UnknownMaterial { suggestions, .. }) => {
+                assert_eq!(suggestions[0], "water")
+            }
             other => panic!("{other:?}"),
         }
         match lookup("cortical-bone") {

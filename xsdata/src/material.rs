@@ -2,7 +2,7 @@
 //! from. Cross sections follow from the element tables by Bragg additivity,
 //! (μ/ρ)_material = Σ_i w_i (μ/ρ)_i.
 //!
-//! ```no_run
+//! ```
 //! use dosemill_xsdata::material::Material;
 //! let water = Material::from_formula("water", "H2O", 1.0, "stoichiometric H2O").unwrap();
 //! let mu = water.mu_per_cm(60.0).unwrap();
@@ -32,7 +32,9 @@ pub enum MaterialError {
         tolerance: f64,
     },
     /// A mass fraction that is negative or not finite.
-    #[error("material `{material}`: mass fraction {value} of `{component}` must be a finite number ≥ 0")]
+    #[error(
+        "material `{material}`: mass fraction {value} of `{component}` must be a finite number ≥ 0"
+    )]
     BadFraction {
         /// Material name.
         material: String,
@@ -42,7 +44,9 @@ pub enum MaterialError {
         value: f64,
     },
     /// Density that is not a positive finite number.
-    #[error("material `{material}`: density {density_g_cm3} g/cm3 must be a positive finite number")]
+    #[error(
+        "material `{material}`: density {density_g_cm3} g/cm3 must be a positive finite number"
+    )]
     BadDensity {
         /// Material name.
         material: String,
@@ -99,7 +103,9 @@ pub enum MaterialError {
         max: f64,
     },
     /// Iodine concentration that is negative, not finite or too high for the density model.
-    #[error("iodine concentration {mg_per_ml} mg I/mL must be ≥ 0 and below {max_mg_per_ml} mg I/mL")]
+    #[error(
+        "iodine concentration {mg_per_ml} mg I/mL must be ≥ 0 and below {max_mg_per_ml} mg I/mL"
+    )]
     BadConcentration {
         /// The value given (mg I per mL of solution).
         mg_per_ml: f64,
@@ -137,7 +143,11 @@ pub fn check_energy(kev: f64) -> Result<(), MaterialError> {
     if kev.is_finite() && (E_MIN_KEV..=E_MAX_KEV).contains(&kev) {
         Ok(())
     } else {
-        Err(MaterialError::EnergyOutOfRange { kev, min: E_MIN_KEV, max: E_MAX_KEV })
+        Err(MaterialError::EnergyOutOfRange {
+            kev,
+            min: E_MIN_KEV,
+            max: E_MAX_KEV,
+        })
     }
 }
 
@@ -156,7 +166,10 @@ impl Material {
         let mut by_z = [0.0f64; 99];
         for &(z, w) in fractions {
             if !(1..=98).contains(&z) {
-                return Err(MaterialError::NoSuchZ { material: name.to_string(), z });
+                return Err(MaterialError::NoSuchZ {
+                    material: name.to_string(),
+                    z,
+                });
             }
             if !w.is_finite() || w < 0.0 {
                 return Err(MaterialError::BadFraction {
@@ -169,19 +182,19 @@ impl Material {
         }
         let sum: f64 = by_z.iter().sum();
         if sum <= 0.0 {
-            return Err(MaterialError::EmptyComposition { material: name.to_string() });
+            return Err(MaterialError::EmptyComposition {
+                material: name.to_string(),
+            });
         }
-        let scale = if (sum - 1.0).abs() <= FRACTION_SUM_TOLERANCE {
-            1.0 / sum
-        } else if normalise {
-            1.0 / sum
-        } else {
+        if (sum - 1.0).abs() > FRACTION_SUM_TOLERANCE && !normalise {
             return Err(MaterialError::FractionSum {
                 material: name.to_string(),
                 sum,
                 tolerance: FRACTION_SUM_TOLERANCE,
             });
-        };
+        }
+        // Within tolerance the small residue is removed too, so stored fractions sum to 1.
+        let scale = 1.0 / sum;
         let composition = by_z
             .iter()
             .enumerate()
@@ -229,9 +242,15 @@ impl Material {
     }
 
     /// A pure element of atomic number `z` at the given density.
-    pub fn pure_element_with_density(z: u32, density_g_cm3: f64, source: &str) -> Result<Material, MaterialError> {
-        let symbol = formula::symbol_of_z(z)
-            .ok_or_else(|| MaterialError::NoSuchZ { material: format!("Z={z}"), z })?;
+    pub fn pure_element_with_density(
+        z: u32,
+        density_g_cm3: f64,
+        source: &str,
+    ) -> Result<Material, MaterialError> {
+        let symbol = formula::symbol_of_z(z).ok_or_else(|| MaterialError::NoSuchZ {
+            material: format!("Z={z}"),
+            z,
+        })?;
         Material::from_mass_fractions_z(symbol, density_g_cm3, &[(z, 1.0)], false, source)
     }
 
@@ -258,7 +277,9 @@ impl Material {
             sum += f;
         }
         if sum <= 0.0 {
-            return Err(MaterialError::EmptyComposition { material: name.to_string() });
+            return Err(MaterialError::EmptyComposition {
+                material: name.to_string(),
+            });
         }
         if (sum - 1.0).abs() > FRACTION_SUM_TOLERANCE && !normalise {
             return Err(MaterialError::FractionSum {
@@ -287,12 +308,17 @@ impl Material {
         const IODINE_DENSITY_G_CM3: f64 = 4.93;
         let max = IODINE_DENSITY_G_CM3 * 1000.0;
         if !mg_per_ml.is_finite() || !(0.0..max).contains(&mg_per_ml) {
-            return Err(MaterialError::BadConcentration { mg_per_ml, max_mg_per_ml: max });
+            return Err(MaterialError::BadConcentration {
+                mg_per_ml,
+                max_mg_per_ml: max,
+            });
         }
         let c = mg_per_ml / 1000.0;
         let density = 1.0 + c * (1.0 - 1.0 / IODINE_DENSITY_G_CM3);
         let w_i = c / density;
-        let water = crate::formula::Formula::parse("H2O").expect("valid formula").mass_fractions();
+        let water = crate::formula::Formula::parse("H2O")
+            .expect("valid formula")
+            .mass_fractions();
         let mut by_z: Vec<(u32, f64)> = water.iter().map(|&(z, w)| (z, w * (1.0 - w_i))).collect();
         by_z.push((53, w_i));
         Material::from_mass_fractions_z(
@@ -314,7 +340,11 @@ impl Material {
     /// another pressure.
     pub fn with_density(&self, density_g_cm3: f64) -> Result<Material, MaterialError> {
         check_density(&self.name, density_g_cm3)?;
-        Ok(Material { density_g_cm3, absorption: self.absorption.clone(), ..self.clone() })
+        Ok(Material {
+            density_g_cm3,
+            absorption: self.absorption.clone(),
+            ..self.clone()
+        })
     }
 
     /// Material name.
@@ -346,7 +376,11 @@ impl Material {
             .join(", ")
     }
 
-    fn sum_over_elements(&self, kev: f64, f: impl Fn(&crate::Element, f64) -> f64) -> Result<f64, MaterialError> {
+    fn sum_over_elements(
+        &self,
+        kev: f64,
+        f: impl Fn(&crate::Element, f64) -> f64,
+    ) -> Result<f64, MaterialError> {
         check_energy(kev)?;
         let table = elements();
         let mut acc = 0.0;
@@ -414,7 +448,10 @@ fn check_density(name: &str, density_g_cm3: f64) -> Result<(), MaterialError> {
     if density_g_cm3.is_finite() && density_g_cm3 > 0.0 {
         Ok(())
     } else {
-        Err(MaterialError::BadDensity { material: name.to_string(), density_g_cm3 })
+        Err(MaterialError::BadDensity {
+            material: name.to_string(),
+            density_g_cm3,
+        })
     }
 }
 
@@ -424,14 +461,19 @@ mod tests {
 
     #[test]
     fn fraction_sum_error_names_sum_and_offers_normalisation() {
-        let e = Material::from_mass_fractions("x", 1.0, &[("H", 0.1), ("O", 0.8)], false, "test").unwrap_err();
+        let e = Material::from_mass_fractions("x", 1.0, &[("H", 0.1), ("O", 0.8)], false, "test")
+            .unwrap_err();
         match &e {
             MaterialError::FractionSum { sum, .. } => assert!((sum - 0.9).abs() < 1e-12),
             other => panic!("wrong error {other:?}"),
         }
         let msg = e.to_string();
-        assert!(msg.contains("0.9000000") && msg.contains("normalise"), "{msg}");
-        let m = Material::from_mass_fractions("x", 1.0, &[("H", 0.1), ("O", 0.8)], true, "test").unwrap();
+        assert!(
+            msg.contains("0.9000000") && msg.contains("normalise"),
+            "{msg}"
+        );
+        let m = Material::from_mass_fractions("x", 1.0, &[("H", 0.1), ("O", 0.8)], true, "test")
+            .unwrap();
         let s: f64 = m.composition().iter().map(|c| c.1).sum();
         assert!((s - 1.0).abs() < 1e-15);
         assert!((m.composition()[0].1 - 0.1 / 0.9).abs() < 1e-15);
@@ -439,10 +481,14 @@ mod tests {
 
     #[test]
     fn within_tolerance_is_accepted_and_rescaled() {
-        let m = Material::from_mass_fractions_z("x", 1.0, &[(1, 0.5), (8, 0.5000005)], false, "t").unwrap();
+        let m = Material::from_mass_fractions_z("x", 1.0, &[(1, 0.5), (8, 0.5000005)], false, "t")
+            .unwrap();
         let s: f64 = m.composition().iter().map(|c| c.1).sum();
         assert!((s - 1.0).abs() < 1e-15);
-        assert!(Material::from_mass_fractions_z("x", 1.0, &[(1, 0.5), (8, 0.500002)], false, "t").is_err());
+        assert!(
+            Material::from_mass_fractions_z("x", 1.0, &[(1, 0.5), (8, 0.500002)], false, "t")
+                .is_err()
+        );
     }
 
     #[test]
@@ -463,8 +509,14 @@ mod tests {
             Material::from_mass_fractions_z("x", 1.0, &[(1, -0.1), (8, 1.1)], false, "t"),
             Err(MaterialError::BadFraction { .. })
         ));
-        assert!(matches!(check_energy(0.5), Err(MaterialError::EnergyOutOfRange { .. })));
-        assert!(matches!(check_energy(801.0), Err(MaterialError::EnergyOutOfRange { .. })));
+        assert!(matches!(
+            check_energy(0.5),
+            Err(MaterialError::EnergyOutOfRange { .. })
+        ));
+        assert!(matches!(
+            check_energy(801.0),
+            Err(MaterialError::EnergyOutOfRange { .. })
+        ));
         assert!(check_energy(1.0).is_ok() && check_energy(800.0).is_ok());
     }
 
@@ -473,7 +525,13 @@ mod tests {
         let a = Material::from_formula("water", "H2O", 1.0, "t").unwrap();
         let b = Material::from_mass_fractions_z("c", 2.0, &[(6, 1.0)], false, "t").unwrap();
         let m = Material::mixture("m", 1.5, &[(&a, 0.25), (&b, 0.75)], false, "t").unwrap();
-        let w = |mat: &Material, z: u32| mat.composition().iter().find(|c| c.0 == z).map(|c| c.1).unwrap_or(0.0);
+        let w = |mat: &Material, z: u32| {
+            mat.composition()
+                .iter()
+                .find(|c| c.0 == z)
+                .map(|c| c.1)
+                .unwrap_or(0.0)
+        };
         assert!((w(&m, 6) - 0.75).abs() < 1e-12);
         assert!((w(&m, 8) - 0.25 * w(&a, 8)).abs() < 1e-12);
         assert!(Material::mixture("m", 1.5, &[(&a, 0.25), (&b, 0.7)], false, "t").is_err());

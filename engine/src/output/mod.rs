@@ -81,6 +81,37 @@ pub use model::{AttrValue, DataBuf, Dataset, Group, ResultFile, TreeError};
 
 use std::path::PathBuf;
 
+/// Root attributes every run writes (see the table above), in the order reports list them.
+pub const RUN_ATTRIBUTES: [&str; 12] = [
+    "dosemill_version",
+    "git_commit",
+    "data_source",
+    "data_tables_sha256",
+    "seed",
+    "histories",
+    "threads",
+    "wall_time_s",
+    "start_time",
+    "completion",
+    "deck_text",
+    "resolved_deck",
+];
+
+/// Values of the group attribute `kind` that reports know how to plot.
+pub mod kind {
+    /// 1-D values per depth bin, `axis0` = depth edges (cm).
+    pub const DEPTH_DOSE: &str = "depth_dose";
+    /// 1-D series over shared energy bin edges, `axis0` = energy edges (keV).
+    pub const SPECTRUM: &str = "spectrum";
+    /// 2-D `[row, column]` detector image, `axis0`/`axis1` = row/column edges (cm).
+    pub const IMAGE: &str = "image";
+    /// 3-D voxel values, `axis0..2` = voxel edges (cm).
+    pub const DOSE_GRID: &str = "dose_grid";
+}
+
+/// Suffix of the dataset holding the 1σ absolute uncertainty of the dataset it is appended to.
+pub const SIGMA_SUFFIX: &str = "_sigma";
+
 /// Error from writing or reading a result file; every variant names the file.
 #[derive(Debug, thiserror::Error)]
 pub enum OutputError {

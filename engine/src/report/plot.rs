@@ -9,7 +9,7 @@ use plotters::style::FontStyle;
 
 use super::summary::{axis_label, is_axis_attr, sigma_base, sigma_of};
 use super::ReportError;
-use crate::output::{self, DataBuf, Dataset, Group, ResultFile};
+use crate::output::{self, kind, DataBuf, Dataset, Group, ResultFile};
 
 /// Family name the embedded font is registered under.
 const FONT: &str = "sans-serif";
@@ -117,7 +117,7 @@ fn plot_group(
     let gpath = format!("{parent}/{}", g.name);
     let stem = gpath.trim_start_matches('/').replace('/', "_");
     match g.kind() {
-        Some("depth_dose") => {
+        Some(kind::DEPTH_DOSE) => {
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 1) {
                 match edges_of(g, d, 0) {
                     Ok((edges, e)) => {
@@ -136,7 +136,7 @@ fn plot_group(
                 }
             }
         }
-        Some("spectrum") => {
+        Some(kind::SPECTRUM) => {
             let mut series = Vec::new();
             let mut common: Option<(&Dataset, Vec<f64>)> = None;
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 1) {
@@ -166,7 +166,7 @@ fn plot_group(
                 )),
             }
         }
-        Some("image") => {
+        Some(kind::IMAGE) => {
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 2) {
                 let axes = edges_of(g, d, 0).and_then(|y| edges_of(g, d, 1).map(|x| (y, x)));
                 match axes {
@@ -192,7 +192,7 @@ fn plot_group(
                 }
             }
         }
-        Some("dose_grid") => {
+        Some(kind::DOSE_GRID) => {
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 3) {
                 let axes = edges_of(g, d, 0)
                     .and_then(|a| edges_of(g, d, 1).map(|b| (a, b)))

@@ -27,8 +27,13 @@ pub struct WriteOptions {
 impl WriteOptions {
     /// Options with `overwrite`, and the fault injection of [`FAULT_ENV_VAR`] if it is set.
     pub fn from_env(overwrite: bool) -> Self {
-        let fail_after_bytes = std::env::var(FAULT_ENV_VAR).ok().and_then(|v| v.trim().parse().ok());
-        WriteOptions { overwrite, fail_after_bytes }
+        let fail_after_bytes = std::env::var(FAULT_ENV_VAR)
+            .ok()
+            .and_then(|v| v.trim().parse().ok());
+        WriteOptions {
+            overwrite,
+            fail_after_bytes,
+        }
     }
 }
 
@@ -38,7 +43,11 @@ impl WriteOptions {
 /// An existing `path` is refused with [`OutputError::Exists`] unless `overwrite`. On any error
 /// the temporary file is removed and whatever was at `path` before is left as it was.
 /// Honours the fault-injection variable [`FAULT_ENV_VAR`].
-pub fn write_atomic(path: impl AsRef<Path>, file: &ResultFile, overwrite: bool) -> Result<(), OutputError> {
+pub fn write_atomic(
+    path: impl AsRef<Path>,
+    file: &ResultFile,
+    overwrite: bool,
+) -> Result<(), OutputError> {
     write_atomic_with(path, file, &WriteOptions::from_env(overwrite))
 }
 
@@ -49,35 +58,97 @@ pub fn write_atomic_with(
     options: &WriteOptions,
 ) -> Result<(), OutputError> {
     let path = path.as_ref();
-    file.validate().map_err(|source| OutputError::Invalid { path: path.to_owned(), source })?;
+    file.validate().map_err(|source| OutputError::Invalid {
+        path: path.to_owned(),
+        source,
+    })?;
     if !options.overwrite && path.exists() {
-        return Err(OutputError::Exists { path: path.to_owned() });
+        return Err(OutputError::Exists {
+            path: path.to_owned(),
+        });
     }
     let builder = build(file);
+    commit_atomic(path, options, |sink, tmp_path| {
+        match builder.finish_to(sink) {
+            Ok(()) => Ok(()),
+            Err(h5::Error::Io(source)) => Err(OutputError::Io {
+                path: tmp_path.to_owned(),
+                action: "cannot write temporary result file",
+                source,
+            }),
+            Err(e) => Err(hdf5_err(path, "/".into(), e)),
+        }
+    })
+}
 
+/// Write `bytes` to `path` with the same atomic, no-silent-overwrite procedure as
+/// [`write_atomic`] (temporary file, fsync, rename). Used for plots and other side files.
+/// Honours the fault-injection variable [`FAULT_ENV_VAR`].
+pub fn write_bytes_atomic(
+    path: impl AsRef<Path>,
+    bytes: &[u8],
+    overwrite: bool,
+) -> Result<(), OutputError> {
+    let path = path.as_ref();
+    let options = WriteOptions::from_env(overwrite);
+    if !options.overwrite && path.exists() {
+        return Err(OutputError::Exists {
+            path: path.to_owned(),
+        });
+    }
+    commit_atomic(path, &options, |sink, tmp_path| {
+        sink.write_all(bytes).map_err(|source| OutputError::Io {
+            path: tmp_path.to_owned(),
+            action: "cannot write temporary file",
+            source,
+        })
+    })
+}
+
+/// Create a temporary file beside `path`, let `fill` write it, fsync, and move it into place
+/// (refusing an existing `path` unless `options.overwrite`). The temporary file is removed on
+/// every error path, so `path` is either the old file or the complete new one.
+fn commit_atomic<F>(path: &Path, options: &WriteOptions, fill: F) -> Result<(), OutputError>
+where
+    F: FnOnce(&mut LimitedWriter<&std::fs::File>, &Path) -> Result<(), OutputError>,
+{
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_owned(),
         _ => PathBuf::from("."),
     };
     let (tmp_path, tmp) = create_temp(&dir, path)?;
-    let mut guard = TempGuard { path: tmp_path.clone(), armed: true };
+    let mut guard = TempGuard {
+        path: tmp_path.clone(),
+        armed: true,
+    };
 
-    let io_err = |action, source| OutputError::Io { path: tmp_path.clone(), action, source };
-    let mut sink = LimitedWriter { inner: &tmp, written: 0, limit: options.fail_after_bytes };
-    match builder.finish_to(&mut sink) {
-        Ok(()) => {}
-        Err(h5::Error::Io(e)) => return Err(io_err("cannot write temporary result file", e)),
-        Err(e) => return Err(hdf5_err(path, "/".into(), e)),
-    }
-    tmp.sync_all().map_err(|e| io_err("cannot flush temporary result file to disk", e))?;
+    let mut sink = LimitedWriter {
+        inner: &tmp,
+        written: 0,
+        limit: options.fail_after_bytes,
+    };
+    fill(&mut sink, &tmp_path)?;
+    sink.flush().map_err(|source| OutputError::Io {
+        path: tmp_path.clone(),
+        action: "cannot write temporary file",
+        source,
+    })?;
+    tmp.sync_all().map_err(|source| OutputError::Io {
+        path: tmp_path.clone(),
+        action: "cannot flush temporary file to disk",
+        source,
+    })?;
     drop(tmp);
 
-    if options.overwrite {
+    let move_into_place = || {
         std::fs::rename(&tmp_path, path).map_err(|source| OutputError::Io {
             path: path.to_owned(),
-            action: "cannot move the finished result file into place",
+            action: "cannot move the finished file into place",
             source,
-        })?;
+        })
+    };
+    if options.overwrite {
+        move_into_place()?;
     } else {
         // A hard link fails if the destination appeared meanwhile, so nothing is replaced
         // even in a race; fall back to a checked rename where links are unsupported.
@@ -86,17 +157,17 @@ pub fn write_atomic_with(
                 let _ = std::fs::remove_file(&tmp_path);
             }
             Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
-                return Err(OutputError::Exists { path: path.to_owned() });
+                return Err(OutputError::Exists {
+                    path: path.to_owned(),
+                });
             }
             Err(_) => {
                 if path.exists() {
-                    return Err(OutputError::Exists { path: path.to_owned() });
+                    return Err(OutputError::Exists {
+                        path: path.to_owned(),
+                    });
                 }
-                std::fs::rename(&tmp_path, path).map_err(|source| OutputError::Io {
-                    path: path.to_owned(),
-                    action: "cannot move the finished result file into place",
-                    source,
-                })?;
+                move_into_place()?;
             }
         }
     }
@@ -115,7 +186,11 @@ pub fn read(path: impl AsRef<Path>) -> Result<ResultFile, OutputError> {
     })?;
     let file = h5::File::from_bytes(bytes).map_err(|e| hdf5_err(path, "/".into(), e))?;
     let root = file.root();
-    let attrs = read_attrs(path, "/", root.attrs().map_err(|e| hdf5_err(path, "/".into(), e))?)?;
+    let attrs = read_attrs(
+        path,
+        "/",
+        root.attrs().map_err(|e| hdf5_err(path, "/".into(), e))?,
+    )?;
     if let Some(d) = sorted(root.datasets().map_err(|e| hdf5_err(path, "/".into(), e))?).first() {
         return Err(OutputError::Unsupported {
             path: path.to_owned(),
@@ -199,7 +274,10 @@ fn to_h5_attr(value: &AttrValue) -> h5::AttrValue {
 static TEMP_COUNTER: AtomicU64 = AtomicU64::new(0);
 
 fn create_temp(dir: &Path, dest: &Path) -> Result<(PathBuf, std::fs::File), OutputError> {
-    let stem = dest.file_name().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "result".into());
+    let stem = dest
+        .file_name()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "result".into());
     loop {
         let n = TEMP_COUNTER.fetch_add(1, Ordering::Relaxed);
         let tmp = dir.join(format!(".{stem}.partial-{}-{n}", std::process::id()));
@@ -283,7 +361,11 @@ fn sorted(mut v: Vec<String>) -> Vec<String> {
 }
 
 fn hdf5_err(path: &Path, object: String, e: h5::Error) -> OutputError {
-    OutputError::Hdf5 { path: path.to_owned(), object, message: e.to_string() }
+    OutputError::Hdf5 {
+        path: path.to_owned(),
+        object,
+        message: e.to_string(),
+    }
 }
 
 fn read_group(path: &Path, file: &h5::File, gpath: &str) -> Result<Group, OutputError> {
@@ -300,14 +382,29 @@ fn read_group(path: &Path, file: &h5::File, gpath: &str) -> Result<Group, Output
         groups.push(read_group(path, file, &format!("{gpath}/{name}"))?);
     }
     let name = gpath.rsplit('/').next().unwrap_or(gpath).to_owned();
-    Ok(Group { name, attrs, datasets, groups })
+    Ok(Group {
+        name,
+        attrs,
+        datasets,
+        groups,
+    })
 }
 
-fn read_dataset(path: &Path, file: &h5::File, dpath: &str, name: &str) -> Result<Dataset, OutputError> {
+fn read_dataset(
+    path: &Path,
+    file: &h5::File,
+    dpath: &str,
+    name: &str,
+) -> Result<Dataset, OutputError> {
     let object = format!("/{dpath}");
     let e = |err| hdf5_err(path, object.clone(), err);
     let ds = file.dataset(dpath).map_err(e)?;
-    let shape: Vec<usize> = ds.shape().map_err(e)?.into_iter().map(|n| n as usize).collect();
+    let shape: Vec<usize> = ds
+        .shape()
+        .map_err(e)?
+        .into_iter()
+        .map(|n| n as usize)
+        .collect();
     let data = match ds.dtype().map_err(e)? {
         h5::DType::F64 => DataBuf::F64(ds.read_f64().map_err(e)?),
         h5::DType::F32 => DataBuf::F32(ds.read_f32().map_err(e)?),
@@ -317,7 +414,9 @@ fn read_dataset(path: &Path, file: &h5::File, dpath: &str, name: &str) -> Result
         h5::DType::U32 => DataBuf::U32(ds.read_u32().map_err(e)?),
         h5::DType::U16 => DataBuf::U16(ds.read_u16().map_err(e)?),
         h5::DType::U8 => DataBuf::U8(ds.read_u8().map_err(e)?),
-        h5::DType::String | h5::DType::VariableLengthString => DataBuf::Str(ds.read_string().map_err(e)?),
+        h5::DType::String | h5::DType::VariableLengthString => {
+            DataBuf::Str(ds.read_string().map_err(e)?)
+        }
         other => {
             return Err(OutputError::Unsupported {
                 path: path.to_owned(),
@@ -340,16 +439,29 @@ fn read_dataset(path: &Path, file: &h5::File, dpath: &str, name: &str) -> Result
             return Err(OutputError::Unsupported {
                 path: path.to_owned(),
                 object,
-                what: format!("`units` attribute is a {}, expected a string", other.type_name()),
+                what: format!(
+                    "`units` attribute is a {}, expected a string",
+                    other.type_name()
+                ),
             })
         }
     };
-    let dataset = Dataset { name: name.to_owned(), shape, data, units, attrs };
+    let dataset = Dataset {
+        name: name.to_owned(),
+        shape,
+        data,
+        units,
+        attrs,
+    };
     if dataset.element_count() != dataset.data.len() {
         return Err(OutputError::Unsupported {
             path: path.to_owned(),
             object,
-            what: format!("shape {:?} does not match {} elements read", dataset.shape, dataset.data.len()),
+            what: format!(
+                "shape {:?} does not match {} elements read",
+                dataset.shape,
+                dataset.data.len()
+            ),
         });
     }
     Ok(dataset)
@@ -366,7 +478,10 @@ fn read_attrs(
             return Err(OutputError::Unsupported {
                 path: path.to_owned(),
                 object: format!("{object} attribute `{name}`"),
-                what: format!("attribute type {} is not one a result file uses", value.type_name()),
+                what: format!(
+                    "attribute type {} is not one a result file uses",
+                    value.type_name()
+                ),
             });
         };
         out.push((name, v));

@@ -231,7 +231,13 @@ pub struct Dataset {
 impl Dataset {
     /// A dataset from its parts (checked when written, see [`ResultFile::validate`]).
     pub fn new(name: &str, shape: &[usize], data: DataBuf, units: &str) -> Self {
-        Dataset { name: name.to_owned(), shape: shape.to_vec(), data, units: units.to_owned(), attrs: Vec::new() }
+        Dataset {
+            name: name.to_owned(),
+            shape: shape.to_vec(),
+            data,
+            units: units.to_owned(),
+            attrs: Vec::new(),
+        }
     }
 
     /// A 1-D f64 dataset, shape `[values.len()]`.
@@ -292,7 +298,10 @@ pub struct Group {
 impl Group {
     /// An empty group with no attributes.
     pub fn new(name: &str) -> Self {
-        Group { name: name.to_owned(), ..Group::default() }
+        Group {
+            name: name.to_owned(),
+            ..Group::default()
+        }
     }
 
     /// An empty group with its `kind` attribute set (see the module docs for the kinds).
@@ -320,6 +329,25 @@ impl Group {
     /// Append a dataset.
     pub fn add_dataset(&mut self, dataset: Dataset) {
         self.datasets.push(dataset);
+    }
+
+    /// Append a scored quantity and its 1σ absolute uncertainty: datasets `name` and
+    /// `name_sigma` of the same `shape` and `units` (lengths are checked when written).
+    pub fn add_with_sigma(
+        &mut self,
+        name: &str,
+        shape: &[usize],
+        values: Vec<f64>,
+        sigma: Vec<f64>,
+        units: &str,
+    ) {
+        self.add_dataset(Dataset::f64_nd(name, shape, values, units));
+        self.add_dataset(Dataset::f64_nd(
+            &format!("{name}{}", super::SIGMA_SUFFIX),
+            shape,
+            sigma,
+            units,
+        ));
     }
 
     /// Append a sub-group.
@@ -351,12 +379,20 @@ impl Group {
         edges: &[f64],
         units: &str,
     ) -> Result<(), TreeError> {
-        let err = |reason: String| TreeError { object: format!("{}/{dataset}", self.name), reason };
+        let err = |reason: String| TreeError {
+            object: format!("{}/{dataset}", self.name),
+            reason,
+        };
         let Some(ds) = self.dataset(dataset) else {
-            return Err(err("no such dataset in this group; add the dataset before its axes".into()));
+            return Err(err(
+                "no such dataset in this group; add the dataset before its axes".into(),
+            ));
         };
         let Some(&extent) = ds.shape.get(axis) else {
-            return Err(err(format!("axis {axis} out of range for shape {:?}", ds.shape)));
+            return Err(err(format!(
+                "axis {axis} out of range for shape {:?}",
+                ds.shape
+            )));
         };
         if edges.len() != extent + 1 {
             return Err(err(format!(
@@ -378,8 +414,16 @@ impl Group {
             }
             None => self.add_dataset(Dataset::f64_1d(edges_name, edges.to_vec(), units)),
         }
-        let ds = self.datasets.iter_mut().find(|d| d.name == dataset).expect("checked above");
-        set_attr(&mut ds.attrs, &format!("axis{axis}"), AttrValue::Str(edges_name.to_owned()));
+        let ds = self
+            .datasets
+            .iter_mut()
+            .find(|d| d.name == dataset)
+            .expect("checked above");
+        set_attr(
+            &mut ds.attrs,
+            &format!("axis{axis}"),
+            AttrValue::Str(edges_name.to_owned()),
+        );
         Ok(())
     }
 
@@ -413,9 +457,17 @@ impl Group {
         self.name == other.name
             && attrs_bits_equal(&self.attrs, &other.attrs)
             && self.datasets.len() == other.datasets.len()
-            && self.datasets.iter().zip(&other.datasets).all(|(a, b)| a.bits_equal(b))
+            && self
+                .datasets
+                .iter()
+                .zip(&other.datasets)
+                .all(|(a, b)| a.bits_equal(b))
             && self.groups.len() == other.groups.len()
-            && self.groups.iter().zip(&other.groups).all(|(a, b)| a.bits_equal(b))
+            && self
+                .groups
+                .iter()
+                .zip(&other.groups)
+                .all(|(a, b)| a.bits_equal(b))
     }
 }
 
@@ -475,7 +527,11 @@ impl ResultFile {
     pub fn bits_equal(&self, other: &ResultFile) -> bool {
         attrs_bits_equal(&self.attrs, &other.attrs)
             && self.groups.len() == other.groups.len()
-            && self.groups.iter().zip(&other.groups).all(|(a, b)| a.bits_equal(b))
+            && self
+                .groups
+                .iter()
+                .zip(&other.groups)
+                .all(|(a, b)| a.bits_equal(b))
     }
 
     /// Check every layout rule: names, uniqueness, shape against length, units present,
@@ -498,11 +554,19 @@ fn get_attr<'a>(attrs: &'a [(String, AttrValue)], name: &str) -> Option<&'a Attr
 }
 
 fn attrs_bits_equal(a: &[(String, AttrValue)], b: &[(String, AttrValue)]) -> bool {
-    a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.0 == y.0 && x.1.bits_equal(&y.1))
+    a.len() == b.len()
+        && a.iter()
+            .zip(b)
+            .all(|(x, y)| x.0 == y.0 && x.1.bits_equal(&y.1))
 }
 
 fn check_name(object: &str, name: &str) -> Result<(), TreeError> {
-    let bad = |reason: &str| Err(TreeError { object: object.to_owned(), reason: reason.to_owned() });
+    let bad = |reason: &str| {
+        Err(TreeError {
+            object: object.to_owned(),
+            reason: reason.to_owned(),
+        })
+    };
     if name.is_empty() {
         return bad("empty name; give every group, dataset and attribute a name");
     }
@@ -515,12 +579,19 @@ fn check_name(object: &str, name: &str) -> Result<(), TreeError> {
     Ok(())
 }
 
-fn check_attrs(object: &str, attrs: &[(String, AttrValue)], on_dataset: bool) -> Result<(), TreeError> {
+fn check_attrs(
+    object: &str,
+    attrs: &[(String, AttrValue)],
+    on_dataset: bool,
+) -> Result<(), TreeError> {
     for (i, (name, value)) in attrs.iter().enumerate() {
         let at = format!("{object} attribute `{name}`");
         check_name(&at, name)?;
         if attrs[..i].iter().any(|(n, _)| n == name) {
-            return Err(TreeError { object: at, reason: "attribute given twice".into() });
+            return Err(TreeError {
+                object: at,
+                reason: "attribute given twice".into(),
+            });
         }
         if on_dataset && name == "units" {
             return Err(TreeError {
@@ -530,7 +601,10 @@ fn check_attrs(object: &str, attrs: &[(String, AttrValue)], on_dataset: bool) ->
         }
         if let AttrValue::Str(s) = value {
             if s.contains('\0') {
-                return Err(TreeError { object: at, reason: "string contains a NUL character".into() });
+                return Err(TreeError {
+                    object: at,
+                    reason: "string contains a NUL character".into(),
+                });
             }
         }
     }
@@ -543,7 +617,10 @@ fn check_children(parent: &str, groups: &[Group], datasets: &[Dataset]) -> Resul
         let path = format!("{parent}/{}", g.name);
         check_name(&path, &g.name)?;
         if names.contains(&g.name.as_str()) {
-            return Err(TreeError { object: path, reason: "name used twice in the same group".into() });
+            return Err(TreeError {
+                object: path,
+                reason: "name used twice in the same group".into(),
+            });
         }
         names.push(&g.name);
     }
@@ -551,7 +628,10 @@ fn check_children(parent: &str, groups: &[Group], datasets: &[Dataset]) -> Resul
         let path = format!("{parent}/{}", d.name);
         check_name(&path, &d.name)?;
         if names.contains(&d.name.as_str()) {
-            return Err(TreeError { object: path, reason: "name used twice in the same group".into() });
+            return Err(TreeError {
+                object: path,
+                reason: "name used twice in the same group".into(),
+            });
         }
         names.push(&d.name);
         check_dataset(&path, d, datasets)?;
@@ -565,7 +645,12 @@ fn check_children(parent: &str, groups: &[Group], datasets: &[Dataset]) -> Resul
 }
 
 fn check_dataset(path: &str, d: &Dataset, siblings: &[Dataset]) -> Result<(), TreeError> {
-    let bad = |reason: String| Err(TreeError { object: path.to_owned(), reason });
+    let bad = |reason: String| {
+        Err(TreeError {
+            object: path.to_owned(),
+            reason,
+        })
+    };
     if d.units.is_empty() {
         return bad("units are empty; use \"1\" for a dimensionless quantity".into());
     }
@@ -574,7 +659,11 @@ fn check_dataset(path: &str, d: &Dataset, siblings: &[Dataset]) -> Result<(), Tr
     }
     let n = d.element_count();
     if n != d.data.len() {
-        return bad(format!("shape {:?} holds {n} elements but the data has {}", d.shape, d.data.len()));
+        return bad(format!(
+            "shape {:?} holds {n} elements but the data has {}",
+            d.shape,
+            d.data.len()
+        ));
     }
     if let DataBuf::Str(v) = &d.data {
         if v.iter().any(|s| s.contains('\0')) {
@@ -583,17 +672,27 @@ fn check_dataset(path: &str, d: &Dataset, siblings: &[Dataset]) -> Result<(), Tr
     }
     check_attrs(path, &d.attrs, true)?;
     for (name, value) in &d.attrs {
-        let Some(axis) = name.strip_prefix("axis").and_then(|s| s.parse::<usize>().ok()) else {
+        let Some(axis) = name
+            .strip_prefix("axis")
+            .and_then(|s| s.parse::<usize>().ok())
+        else {
             continue;
         };
         let Some(edges_name) = value.as_str() else {
-            return bad(format!("attribute `{name}` must be the name of an edges dataset"));
+            return bad(format!(
+                "attribute `{name}` must be the name of an edges dataset"
+            ));
         };
         let Some(&extent) = d.shape.get(axis) else {
-            return bad(format!("attribute `{name}` refers to a dimension the shape {:?} lacks", d.shape));
+            return bad(format!(
+                "attribute `{name}` refers to a dimension the shape {:?} lacks",
+                d.shape
+            ));
         };
         let Some(edges) = siblings.iter().find(|s| s.name == edges_name) else {
-            return bad(format!("attribute `{name}` names `{edges_name}`, which is not in this group"));
+            return bad(format!(
+                "attribute `{name}` names `{edges_name}`, which is not in this group"
+            ));
         };
         if edges.shape != [extent + 1] {
             return bad(format!(

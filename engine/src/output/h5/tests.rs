@@ -10,7 +10,8 @@ impl Scratch {
     fn new(tag: &str) -> Self {
         static N: AtomicU64 = AtomicU64::new(0);
         let n = N.fetch_add(1, Ordering::Relaxed);
-        let p = std::env::temp_dir().join(format!("dosemill-output-{tag}-{}-{n}", std::process::id()));
+        let p =
+            std::env::temp_dir().join(format!("dosemill-output-{tag}-{}-{n}", std::process::id()));
         let _ = std::fs::remove_dir_all(&p);
         std::fs::create_dir_all(&p).unwrap();
         Scratch(p)
@@ -43,15 +44,50 @@ fn sample(marker: f64) -> ResultFile {
     f.set_attr("ints", AttrValue::I64s(vec![-1, 0, i64::MAX]));
     f.set_attr("deck_text", "x".repeat(70_000) + "\nµ-end");
     let mut g = Group::with_kind("pdd", "depth_dose");
-    g.add_dataset(Dataset::f64_1d("dose", vec![marker, 2.0, -0.0, f64::MIN_POSITIVE, 1e300], "Gy"));
-    g.add_dataset(Dataset::f64_1d("dose_sigma", vec![0.1, 0.2, 0.0, 0.0, 1e298], "Gy"));
-    g.attach_axis("dose", 0, "depth_edges_cm", &[0.0, 0.5, 1.0, 1.5, 2.0, 2.5], "cm").unwrap();
+    g.add_dataset(Dataset::f64_1d(
+        "dose",
+        vec![marker, 2.0, -0.0, f64::MIN_POSITIVE, 1e300],
+        "Gy",
+    ));
+    g.add_dataset(Dataset::f64_1d(
+        "dose_sigma",
+        vec![0.1, 0.2, 0.0, 0.0, 1e298],
+        "Gy",
+    ));
+    g.attach_axis(
+        "dose",
+        0,
+        "depth_edges_cm",
+        &[0.0, 0.5, 1.0, 1.5, 2.0, 2.5],
+        "cm",
+    )
+    .unwrap();
     let mut inner = Group::new("inner");
-    inner.add_dataset(Dataset::new("counts", &[2, 2], DataBuf::U64(vec![0, 1, u64::MAX, 3]), "1"));
-    inner.add_dataset(Dataset::new("mask", &[3], DataBuf::U8(vec![0, 255, 7]), "1"));
+    inner.add_dataset(Dataset::new(
+        "counts",
+        &[2, 2],
+        DataBuf::U64(vec![0, 1, u64::MAX, 3]),
+        "1",
+    ));
+    inner.add_dataset(Dataset::new(
+        "mask",
+        &[3],
+        DataBuf::U8(vec![0, 255, 7]),
+        "1",
+    ));
     inner.add_dataset(Dataset::new("mat", &[2], DataBuf::U16(vec![65535, 1]), "1"));
-    inner.add_dataset(Dataset::new("f", &[1, 2], DataBuf::F32(vec![1.5, -2.25]), "keV"));
-    inner.add_dataset(Dataset::new("i", &[2], DataBuf::I64(vec![i64::MIN, 5]), "1"));
+    inner.add_dataset(Dataset::new(
+        "f",
+        &[1, 2],
+        DataBuf::F32(vec![1.5, -2.25]),
+        "keV",
+    ));
+    inner.add_dataset(Dataset::new(
+        "i",
+        &[2],
+        DataBuf::I64(vec![i64::MIN, 5]),
+        "1",
+    ));
     inner.add_dataset(Dataset::new("scalar", &[], DataBuf::F64(vec![42.0]), "s"));
     inner.add_dataset(Dataset::text("note", "line 1\nline 2 — ü"));
     g.add_group(inner);
@@ -66,13 +102,22 @@ fn round_trip_is_bit_exact_and_sorted() {
     let f = sample(1.0);
     write_atomic_with(&p, &f, &WriteOptions::default()).unwrap();
     let back = read(&p).unwrap();
-    assert!(back.bits_equal(&f.canonical()), "read-back differs:\n{back:#?}");
+    assert!(
+        back.bits_equal(&f.canonical()),
+        "read-back differs:\n{back:#?}"
+    );
     // -0.0 keeps its sign bit through the file.
     let dose = back.group("pdd").unwrap().dataset("dose").unwrap();
-    let DataBuf::F64(v) = &dose.data else { panic!("dose is not f64") };
+    let DataBuf::F64(v) = &dose.data else {
+        panic!("dose is not f64")
+    };
     assert_eq!(v[2].to_bits(), (-0.0f64).to_bits());
     assert_eq!(back.attr("complete_flag"), Some(&AttrValue::Bool(true)));
-    assert_eq!(dir.entries(), vec!["r.h5"], "no temporary file may be left behind");
+    assert_eq!(
+        dir.entries(),
+        vec!["r.h5"],
+        "no temporary file may be left behind"
+    );
 }
 
 #[test]
@@ -87,10 +132,15 @@ fn existing_file_is_refused_without_overwrite_and_replaced_with_it() {
     assert!(msg.contains("r.h5") && msg.contains("--force"), "{msg}");
     assert_eq!(std::fs::read(&p).unwrap(), before);
 
-    let opts = WriteOptions { overwrite: true, ..WriteOptions::default() };
+    let opts = WriteOptions {
+        overwrite: true,
+        ..WriteOptions::default()
+    };
     write_atomic_with(&p, &sample(2.0), &opts).unwrap();
     let back = read(&p).unwrap();
-    let DataBuf::F64(v) = &back.group("pdd").unwrap().dataset("dose").unwrap().data else { panic!() };
+    let DataBuf::F64(v) = &back.group("pdd").unwrap().dataset("dose").unwrap().data else {
+        panic!()
+    };
     assert_eq!(v[0], 2.0);
     assert_eq!(dir.entries(), vec!["r.h5"]);
 }
@@ -103,18 +153,34 @@ fn failed_write_keeps_previous_file_and_leaves_no_temp() {
     let before = std::fs::read(&p).unwrap();
     // Fail at several points: before the first byte, in the superblock, mid-file, near the end.
     for limit in [0u64, 10, 4096, before.len() as u64 - 1] {
-        let opts = WriteOptions { overwrite: true, fail_after_bytes: Some(limit) };
+        let opts = WriteOptions {
+            overwrite: true,
+            fail_after_bytes: Some(limit),
+        };
         let err = write_atomic_with(&p, &sample(9.0), &opts).unwrap_err();
         match &err {
-            OutputError::Io { source, .. } => assert_eq!(source.kind(), io::ErrorKind::StorageFull, "{err}"),
+            OutputError::Io { source, .. } => {
+                assert_eq!(source.kind(), io::ErrorKind::StorageFull, "{err}")
+            }
             other => panic!("expected an I/O error, got {other}"),
         }
-        assert_eq!(std::fs::read(&p).unwrap(), before, "previous file changed (limit {limit})");
-        assert_eq!(dir.entries(), vec!["r.h5"], "temporary file left behind (limit {limit})");
+        assert_eq!(
+            std::fs::read(&p).unwrap(),
+            before,
+            "previous file changed (limit {limit})"
+        );
+        assert_eq!(
+            dir.entries(),
+            vec!["r.h5"],
+            "temporary file left behind (limit {limit})"
+        );
     }
     // A new destination that fails is not created at all.
     let q = dir.0.join("new.h5");
-    let opts = WriteOptions { overwrite: false, fail_after_bytes: Some(100) };
+    let opts = WriteOptions {
+        overwrite: false,
+        fail_after_bytes: Some(100),
+    };
     assert!(write_atomic_with(&q, &sample(1.0), &opts).is_err());
     assert!(!q.exists());
     assert_eq!(dir.entries(), vec!["r.h5"]);
@@ -178,7 +244,10 @@ fn invalid_trees_are_refused_before_touching_disk() {
     for (f, needle) in cases {
         let err = write_atomic_with(&p, &f, &WriteOptions::default()).unwrap_err();
         assert!(matches!(err, OutputError::Invalid { .. }), "{err}");
-        assert!(err.to_string().contains(needle), "`{err}` should mention `{needle}`");
+        assert!(
+            err.to_string().contains(needle),
+            "`{err}` should mention `{needle}`"
+        );
         assert!(dir.entries().is_empty());
     }
 }
@@ -187,12 +256,19 @@ fn invalid_trees_are_refused_before_touching_disk() {
 fn attach_axis_checks_edge_count() {
     let mut g = Group::new("g");
     g.add_dataset(Dataset::f64_nd("img", &[2, 3], vec![0.0; 6], "1"));
-    assert!(g.attach_axis("img", 1, "x_edges_cm", &[0.0, 1.0, 2.0, 3.0], "cm").is_ok());
-    let e: TreeError = g.attach_axis("img", 0, "y_edges_cm", &[0.0, 1.0], "cm").unwrap_err();
+    assert!(g
+        .attach_axis("img", 1, "x_edges_cm", &[0.0, 1.0, 2.0, 3.0], "cm")
+        .is_ok());
+    let e: TreeError = g
+        .attach_axis("img", 0, "y_edges_cm", &[0.0, 1.0], "cm")
+        .unwrap_err();
     assert!(e.reason.contains("needs 3 edges"), "{e}");
     assert!(g.attach_axis("img", 2, "z", &[0.0], "cm").is_err());
     assert!(g.attach_axis("nope", 0, "z", &[0.0], "cm").is_err());
-    assert_eq!(g.axis_of(g.dataset("img").unwrap(), 1).unwrap().name, "x_edges_cm");
+    assert_eq!(
+        g.axis_of(g.dataset("img").unwrap(), 1).unwrap().name,
+        "x_edges_cm"
+    );
 }
 
 #[test]
@@ -203,5 +279,63 @@ fn reading_a_non_hdf5_file_names_it() {
     let err = read(&p).unwrap_err();
     assert!(err.to_string().contains("not.h5"), "{err}");
     let err = read(dir.0.join("missing.h5")).unwrap_err();
-    assert!(matches!(err, OutputError::Io { .. }) && err.to_string().contains("missing.h5"), "{err}");
+    assert!(
+        matches!(err, OutputError::Io { .. }) && err.to_string().contains("missing.h5"),
+        "{err}"
+    );
+}
+
+#[test]
+fn same_tree_gives_byte_identical_files() {
+    // No timestamps or addresses that vary between runs: a rerun with the same seed can be
+    // compared with `cmp` as well as dataset by dataset.
+    let dir = Scratch::new("repro");
+    let (a, b) = (dir.0.join("a.h5"), dir.0.join("b.h5"));
+    write_atomic_with(&a, &sample(1.0), &WriteOptions::default()).unwrap();
+    write_atomic_with(&b, &sample(1.0), &WriteOptions::default()).unwrap();
+    assert_eq!(std::fs::read(&a).unwrap(), std::fs::read(&b).unwrap());
+}
+
+#[test]
+fn foreign_layouts_are_refused_with_the_object_path() {
+    let dir = Scratch::new("foreign");
+    // A dataset without a `units` attribute.
+    let p = dir.0.join("nounits.h5");
+    let mut b = h5::FileBuilder::new();
+    let mut g = b.create_group("scorer");
+    g.create_dataset("dose").with_f64_data(&[1.0, 2.0]);
+    b.add_group(g.finish());
+    b.write(&p).unwrap();
+    let err = read(&p).unwrap_err();
+    assert!(matches!(err, OutputError::Unsupported { .. }), "{err}");
+    let msg = err.to_string();
+    assert!(
+        msg.contains("nounits.h5") && msg.contains("/scorer/dose") && msg.contains("units"),
+        "{msg}"
+    );
+
+    // A dataset directly under the root.
+    let p = dir.0.join("rootds.h5");
+    let mut b = h5::FileBuilder::new();
+    b.create_dataset("loose")
+        .with_f64_data(&[1.0])
+        .set_attr("units", h5::AttrValue::VarLenString("1".into()));
+    b.write(&p).unwrap();
+    let err = read(&p).unwrap_err();
+    assert!(err.to_string().contains("/loose"), "{err}");
+
+    // An element type the layout does not use (8-bit signed).
+    let p = dir.0.join("i8.h5");
+    let mut b = h5::FileBuilder::new();
+    let mut g = b.create_group("g");
+    g.create_dataset("x")
+        .with_i8_data(&[1, -1])
+        .set_attr("units", h5::AttrValue::VarLenString("1".into()));
+    b.add_group(g.finish());
+    b.write(&p).unwrap();
+    let err = read(&p).unwrap_err();
+    assert!(
+        err.to_string().contains("/g/x") && err.to_string().contains("element type"),
+        "{err}"
+    );
 }

@@ -29,7 +29,10 @@ pub use error::DeckError;
 pub use sweep::{SweepAxis, MAX_COMBINATIONS};
 pub use tree::{FileRole, SourceFile};
 pub use types::*;
-pub use validate::{BYTES_PER_PIXEL_ESTIMATE, BYTES_PER_VOXEL_ESTIMATE, MAX_BINS, MAX_DETECTOR_PIXELS, MAX_HISTORIES, MAX_VOXELS};
+pub use validate::{
+    BYTES_PER_PIXEL_ESTIMATE, BYTES_PER_VOXEL_ESTIMATE, MAX_BINS, MAX_DETECTOR_PIXELS,
+    MAX_HISTORIES, MAX_VOXELS,
+};
 
 use std::path::{Path, PathBuf};
 use tree::{Files, Node, Val};
@@ -48,6 +51,7 @@ pub struct Deck {
     pub sweep: Vec<SweepAxis>,
     points: Vec<(Vec<(String, toml::Value)>, ResolvedDeck)>,
     uses: Vec<MaterialUse>,
+    user_materials: Vec<String>,
     located: Files,
 }
 
@@ -55,7 +59,14 @@ pub struct Deck {
 pub fn load(path: &Path) -> Result<Deck, Vec<DeckError>> {
     let mut files = Files::default();
     let mut errors = Vec::new();
-    let tree = tree::load_tree(path, FileRole::Deck, &mut files, &mut Vec::new(), None, &mut errors);
+    let tree = tree::load_tree(
+        path,
+        FileRole::Deck,
+        &mut files,
+        &mut Vec::new(),
+        None,
+        &mut errors,
+    );
     finish(path, tree, files, errors)
 }
 
@@ -68,8 +79,15 @@ pub fn load_str(text: &str, path: &Path) -> Result<Deck, Vec<DeckError>> {
     finish(path, tree, files, errors)
 }
 
-fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckError>) -> Result<Deck, Vec<DeckError>> {
-    let Some(mut root) = tree else { return Err(errors) };
+fn finish(
+    path: &Path,
+    tree: Option<Node>,
+    files: Files,
+    mut errors: Vec<DeckError>,
+) -> Result<Deck, Vec<DeckError>> {
+    let Some(mut root) = tree else {
+        return Err(errors);
+    };
     // Take the sweep out of the tree: the base point is the deck without it.
     let mut sweep_node = None;
     if let Val::Table(entries) = &mut root.val {
@@ -85,6 +103,7 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
     }
     errors.append(&mut walk.cx.errors);
     let mut uses = std::mem::take(&mut walk.uses);
+    let user_materials = std::mem::take(&mut walk.user_materials);
     let mut spectra = std::mem::take(&mut walk.spectra);
     if !errors.is_empty() {
         return Err(dedup(errors));
@@ -95,7 +114,15 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
         let combos = sweep::combinations(&axes);
         if combos.len() > MAX_COMBINATIONS {
             let s = sweep_node.as_ref().expect("sweep present");
-            errors.push(files.error(s.key_or_value(), "sweep", format!("the sweep expands to {} combinations (limit {MAX_COMBINATIONS})", combos.len()), Some("sweep fewer values, or split the study into several decks".into())));
+            errors.push(files.error(
+                s.key_or_value(),
+                "sweep",
+                format!(
+                    "the sweep expands to {} combinations (limit {MAX_COMBINATIONS})",
+                    combos.len()
+                ),
+                Some("sweep fewer values, or split the study into several decks".into()),
+            ));
             return Err(errors);
         }
         let labels = sweep::labels(&axes);
@@ -107,7 +134,11 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
                 let ax = &axes[ai];
                 sweep::set_path(&mut t, &ax.key_path, ax.nodes[vi].clone(), ax.key_loc);
                 values.push((ax.key_path.clone(), ax.values[vi].clone()));
-                name.push_str(&format!("__{}-{}", labels[ai], sweep::value_label(&ax.values[vi])));
+                name.push_str(&format!(
+                    "__{}-{}",
+                    labels[ai],
+                    sweep::value_label(&ax.values[vi])
+                ));
             }
             let mut w = Walk::new(&files, path.to_path_buf());
             let r = w.deck(&t);
@@ -129,11 +160,23 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
     }
     let mut all = files.files.clone();
     all.extend(spectra);
-    Ok(Deck { path: path.to_path_buf(), files: all, resolved: base, sweep: axes, points, uses, located: files })
+    Ok(Deck {
+        path: path.to_path_buf(),
+        files: all,
+        resolved: base,
+        sweep: axes,
+        points,
+        uses,
+        user_materials,
+        located: files,
+    })
 }
 
 fn base_stem(output: &Path) -> String {
-    output.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "run".into())
+    output
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "run".into())
 }
 
 fn dedup(errors: Vec<DeckError>) -> Vec<DeckError> {
@@ -150,8 +193,16 @@ fn dedup(errors: Vec<DeckError>) -> Vec<DeckError> {
 /// grid materials, labels — all names not defined by a `[[material]]`) with `lookup`, which
 /// returns `Err(message)` for an unknown name. A message of the form `"unknown material; did
 /// you mean `water`?"` is split at the first `"; "` into message and hint.
-pub fn validate_with(deck: &Deck, lookup: &dyn Fn(&str) -> Result<(), String>) -> Result<(), Vec<DeckError>> {
-    let errs = dedup(validate::check_library_names(&deck.located, &deck.uses, lookup));
+pub fn validate_with(
+    deck: &Deck,
+    lookup: &dyn Fn(&str) -> Result<(), String>,
+) -> Result<(), Vec<DeckError>> {
+    let errs = dedup(validate::check_library_names(
+        &deck.located,
+        &deck.uses,
+        &deck.user_materials,
+        lookup,
+    ));
     if errs.is_empty() {
         Ok(())
     } else {

@@ -3,6 +3,61 @@
 //! scattering function S(x,Z), fluorescence yields and radiative lines.
 //!
 //! API CONTRACT (other crates code against exactly these signatures; do not rename).
+//!
+//! # Where the numbers come from
+//! `xsdata/generate/make_tables.py` evaluates xraylib (version in [`crate::Provenance`]) and
+//! writes `xsdata/data/elements.bin`, embedded here with `include_bytes!`. The photoelectric cross
+//! section is xraylib's; the coherent and incoherent cross sections are integrals of the stored
+//! (clamped, interpolated) F and S, so that sampling angles from F and S is consistent with the
+//! cross sections used for path lengths.
+//!
+//! # Interpolation
+//! Cross sections: log-log between energy nodes. The grid is log-uniform (100 intervals per
+//! decade, 1–800 keV), plus every jump of the photo cross section as a duplicated energy (value
+//! below, value above), plus nodes added where log-log interpolation missed xraylib's photo cross
+//! section by more than 0.03 %. Lookup uses a direct index: a per-element array maps each of
+//! 4 × (uniform intervals) equal buckets in ln E to a node at or below the bucket, followed by a
+//! short forward step. At an exact edge energy the value above the edge is returned. Shell shares
+//! are linear in ln E (they are constant between edges). F and S: log-log where both ends of an
+//! interval are positive, linear otherwise (the first interval, from x = 0, is linear).
+//!
+//! # Table format (version 1, little-endian)
+//! ```text
+//! header:  magic b"DMXSDATA", u32 format_version, u32 n_elements,
+//!          f64 e_min_kev, f64 e_max_kev, u32 n_uniform_intervals,
+//!          u32 n_x, f64 x[n_x]                  (1/Å; x[0] = 0, then log-uniform)
+//! element: u32 z, [u8; 4] symbol (ASCII, NUL-padded), f64 atomic_weight (g/mol),
+//!          u32 n, f64 energy_kev[n], f64 photo[n], f64 coherent[n], f64 incoherent[n] (cm²/g),
+//!          f64 share_k[n], f64 share_l1[n], f64 share_l2[n], f64 share_l3[n],
+//!          u32 n_edges, n_edges × (f64 edge_kev, u32 xraylib_shell (255 = unassigned)),
+//!          f64 form_factor[n_x], f64 incoherent_function[n_x],
+//!          4 × shell (K, L1, L2, L3): u32 shell_code, f64 edge_kev, f64 fluorescence_yield,
+//!              f64 coster_kronig_to_l2, f64 coster_kronig_to_l3, u32 n_lines,
+//!              n_lines × (f64 kev, f64 share, u32 from_code, [u8; 8] IUPAC label, NUL-padded)
+//! trailer: magic b"DMXSEND\0"
+//! ```
+//! Shell codes: 0 K, 1 L1, 2 L2, 3 L3, 4 outer (M and beyond). An edge appears in the energy
+//! array twice (below, then above); energies are non-decreasing.
+
+use std::sync::OnceLock;
+
+use crate::provenance::Provenance;
+use crate::{E_MAX_KEV, E_MIN_KEV};
+
+/// The table file, embedded at build time.
+const TABLE_BYTES: &[u8] = include_bytes!("../data/elements.bin");
+/// Its provenance sidecar.
+const PROVENANCE_TOML: &str = include_str!("../data/provenance.toml");
+
+/// The table format version this loader reads.
+pub const TABLE_FORMAT_VERSION: u32 = 1;
+/// Highest atomic number in the tables.
+pub const Z_MAX: u32 = 98;
+
+const MAGIC: &[u8; 8] = b"DMXSDATA";
+const END_MAGIC: &[u8; 8] = b"DMXSEND\0";
+/// Lookup buckets per uniform grid interval.
+const BUCKETS_PER_INTERVAL: usize = 4;
 
 /// Errors from the data tables.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -25,6 +80,30 @@ pub enum XsError {
     UnknownSymbol(String),
 }
 
+/// A malformed table file (only possible if `elements.bin` was damaged or hand-edited).
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum TableFormatError {
+    /// The file ended early.
+    #[error("element tables: file ends at byte {offset} while reading {what}; regenerate it with xsdata/generate/make_tables.py --force")]
+    Truncated {
+        /// Byte offset where more data was expected.
+        offset: usize,
+        /// What was being read.
+        what: &'static str,
+    },
+    /// Wrong magic bytes or version.
+    #[error("element tables: {0}; regenerate them with xsdata/generate/make_tables.py --force")]
+    Header(String),
+    /// A value that cannot be right.
+    #[error("element tables: element Z={z}: {what}; regenerate them with xsdata/generate/make_tables.py --force")]
+    Invalid {
+        /// Atomic number of the element concerned.
+        z: u32,
+        /// What is wrong.
+        what: String,
+    },
+}
+
 /// The shells whose vacancies dosemill follows (the rest are lumped).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum Shell {
@@ -38,6 +117,31 @@ pub enum Shell {
     L3,
     /// Any outer shell (M and beyond): its vacancy is not followed.
     Outer,
+}
+
+impl Shell {
+    /// Index of a followed shell in [`Element::shells`] and [`Element::photo_shell_shares`]
+    /// (K 0, L1 1, L2 2, L3 3); `None` for [`Shell::Outer`].
+    pub fn index(self) -> Option<usize> {
+        match self {
+            Shell::K => Some(0),
+            Shell::L1 => Some(1),
+            Shell::L2 => Some(2),
+            Shell::L3 => Some(3),
+            Shell::Outer => None,
+        }
+    }
+
+    fn from_code(code: u32) -> Option<Shell> {
+        match code {
+            0 => Some(Shell::K),
+            1 => Some(Shell::L1),
+            2 => Some(Shell::L2),
+            3 => Some(Shell::L3),
+            4 => Some(Shell::Outer),
+            _ => None,
+        }
+    }
 }
 
 /// A radiative transition filling a vacancy in a shell.
@@ -66,6 +170,26 @@ pub struct ShellData {
     pub coster_kronig: (f64, f64),
 }
 
+/// All interaction data of one element at one energy (one grid lookup).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Interaction {
+    /// Photoelectric mass cross section (cm²/g).
+    pub photo_cm2_g: f64,
+    /// Coherent (Rayleigh) mass cross section (cm²/g).
+    pub coherent_cm2_g: f64,
+    /// Bound incoherent (Compton) mass cross section (cm²/g).
+    pub incoherent_cm2_g: f64,
+    /// Shares of the photoelectric cross section taken by K, L1, L2, L3.
+    pub photo_shell_shares: [f64; 4],
+}
+
+impl Interaction {
+    /// Total mass attenuation coefficient μ/ρ (cm²/g), coherent included.
+    pub fn total_cm2_g(&self) -> f64 {
+        self.photo_cm2_g + self.coherent_cm2_g + self.incoherent_cm2_g
+    }
+}
+
 /// Interaction data of one element.
 #[derive(Debug, Clone)]
 pub struct Element {
@@ -75,47 +199,511 @@ pub struct Element {
     pub symbol: String,
     /// Standard atomic weight (g/mol).
     pub atomic_weight: f64,
-    // private fields: the implementation chooses the layout
+    // Energy grid.
+    nodes_kev: Vec<f64>,
+    ln_nodes: Vec<f64>,
+    /// 1 / (ln E[i+1] − ln E[i]) per interval; 0 for the zero-width interval of an edge.
+    inv_dln: Vec<f64>,
+    photo: Vec<f64>,
+    coherent: Vec<f64>,
+    incoherent: Vec<f64>,
+    ln_photo: Vec<f64>,
+    ln_coherent: Vec<f64>,
+    ln_incoherent: Vec<f64>,
+    shares: Vec<[f64; 4]>,
+    /// For each bucket in ln E: a node index at or below every energy of the bucket.
+    bucket_first: Vec<u32>,
+    ln_e_min: f64,
+    buckets_per_ln: f64,
+    edges_kev: Vec<f64>,
+    edge_shells: Vec<u32>,
+    // Momentum-transfer grid.
+    x_nodes: Vec<f64>,
+    ln_x: Vec<f64>,
+    /// 1 / (ln x[i+1] − ln x[i]) per interval (interval 0 starts at x = 0: unused).
+    inv_dln_x: Vec<f64>,
+    ln_x_first: f64,
+    x_intervals_per_ln: f64,
+    form_factor: ScatterFunction,
+    incoherent_function: ScatterFunction,
+    shells: [ShellData; 4],
+    line_labels: [Vec<String>; 4],
+}
+
+/// Values of F or S on the x grid with what log-log interpolation needs.
+#[derive(Debug, Clone)]
+struct ScatterFunction {
+    values: Vec<f64>,
+    ln_values: Vec<f64>,
+    /// Interval i is interpolated log-log (both ends positive, x[i] > 0), else linearly.
+    log_log: Vec<bool>,
+}
+
+impl ScatterFunction {
+    fn new(values: Vec<f64>, x: &[f64]) -> Self {
+        let ln_values = values.iter().map(|v| if *v > 0.0 { v.ln() } else { f64::NEG_INFINITY }).collect();
+        let log_log = (0..values.len() - 1)
+            .map(|i| x[i] > 0.0 && values[i] > 0.0 && values[i + 1] > 0.0)
+            .collect();
+        ScatterFunction { values, ln_values, log_log }
+    }
 }
 
 impl Element {
+    /// Checks that `kev` lies inside the tabulated range 1–800 keV.
+    pub fn check_energy(kev: f64) -> Result<(), XsError> {
+        if (E_MIN_KEV..=E_MAX_KEV).contains(&kev) {
+            Ok(())
+        } else {
+            Err(XsError::EnergyOutOfRange { kev, min: E_MIN_KEV, max: E_MAX_KEV })
+        }
+    }
+
+    /// Interval index i and fraction t in ln E, for nodes[i] ≤ kev < nodes[i+1] (the last
+    /// interval for kev = E_MAX). Energies outside 1–800 keV are clamped to the range: callers
+    /// validate energies once, up front, with [`Element::check_energy`] or the `try_` methods.
+    #[inline]
+    fn locate(&self, kev: f64) -> (usize, f64) {
+        let kev = kev.clamp(E_MIN_KEV, E_MAX_KEV);
+        let ln_e = kev.ln();
+        let bucket = (((ln_e - self.ln_e_min) * self.buckets_per_ln) as usize).min(self.bucket_first.len() - 1);
+        let mut i = self.bucket_first[bucket] as usize;
+        let last = self.nodes_kev.len() - 2;
+        while i < last && self.nodes_kev[i + 1] <= kev {
+            i += 1;
+        }
+        (i, (ln_e - self.ln_nodes[i]) * self.inv_dln[i])
+    }
+
+    #[inline]
+    fn log_log(ln_values: &[f64], i: usize, t: f64) -> f64 {
+        let a = ln_values[i];
+        (a + t * (ln_values[i + 1] - a)).exp()
+    }
+
+    /// All cross sections and shell shares at `kev` with one grid lookup (energies outside
+    /// 1–800 keV are clamped; see [`Element::try_interaction`]).
+    #[inline]
+    pub fn interaction(&self, kev: f64) -> Interaction {
+        let (i, t) = self.locate(kev);
+        let (a, b) = (self.shares[i], self.shares[i + 1]);
+        Interaction {
+            photo_cm2_g: Self::log_log(&self.ln_photo, i, t),
+            coherent_cm2_g: Self::log_log(&self.ln_coherent, i, t),
+            incoherent_cm2_g: Self::log_log(&self.ln_incoherent, i, t),
+            photo_shell_shares: [
+                a[0] + t * (b[0] - a[0]),
+                a[1] + t * (b[1] - a[1]),
+                a[2] + t * (b[2] - a[2]),
+                a[3] + t * (b[3] - a[3]),
+            ],
+        }
+    }
+
+    /// [`Element::interaction`], with an error outside 1–800 keV.
+    pub fn try_interaction(&self, kev: f64) -> Result<Interaction, XsError> {
+        Self::check_energy(kev)?;
+        Ok(self.interaction(kev))
+    }
+
+    /// [`Element::total_cm2_g`], with an error outside 1–800 keV.
+    pub fn try_total_cm2_g(&self, kev: f64) -> Result<f64, XsError> {
+        Self::check_energy(kev)?;
+        Ok(self.total_cm2_g(kev))
+    }
+
     /// Photoelectric mass cross section (cm²/g); at an edge energy the value above the edge.
-    pub fn photo_cm2_g(&self, kev: f64) -> f64 { let _ = kev; todo!() }
+    pub fn photo_cm2_g(&self, kev: f64) -> f64 {
+        let (i, t) = self.locate(kev);
+        Self::log_log(&self.ln_photo, i, t)
+    }
     /// Coherent (Rayleigh) mass cross section (cm²/g), consistent with [`Element::form_factor`].
-    pub fn coherent_cm2_g(&self, kev: f64) -> f64 { let _ = kev; todo!() }
+    pub fn coherent_cm2_g(&self, kev: f64) -> f64 {
+        let (i, t) = self.locate(kev);
+        Self::log_log(&self.ln_coherent, i, t)
+    }
     /// Bound incoherent (Compton) mass cross section (cm²/g), consistent with [`Element::incoherent_function`].
-    pub fn incoherent_cm2_g(&self, kev: f64) -> f64 { let _ = kev; todo!() }
+    pub fn incoherent_cm2_g(&self, kev: f64) -> f64 {
+        let (i, t) = self.locate(kev);
+        Self::log_log(&self.ln_incoherent, i, t)
+    }
     /// Total mass attenuation coefficient μ/ρ (cm²/g), coherent included.
-    pub fn total_cm2_g(&self, kev: f64) -> f64 { let _ = kev; todo!() }
+    pub fn total_cm2_g(&self, kev: f64) -> f64 {
+        self.interaction(kev).total_cm2_g()
+    }
     /// Shares of the photoelectric cross section at `kev` taken by K, L1, L2, L3 (the rest is outer shells).
-    pub fn photo_shell_shares(&self, kev: f64) -> [f64; 4] { let _ = kev; todo!() }
+    ///
+    /// Derived from the jump ratios J of the photo cross section at each edge: a shell whose
+    /// edge lies below `kev` takes 1 − 1/J of what the deeper shells leave; constant between
+    /// edges. At an edge energy, the shares above the edge. A shell's share starts at the photo
+    /// data's jump ([`Element::edges_kev`]), which may lie a few eV below the binding energy
+    /// [`ShellData::edge_kev`]: a photoelectron energy E − edge_kev must be clamped at 0.
+    pub fn photo_shell_shares(&self, kev: f64) -> [f64; 4] {
+        self.interaction(kev).photo_shell_shares
+    }
     /// Energy nodes of this element's cross-section grid (keV), ascending; each edge appears twice.
-    pub fn nodes_kev(&self) -> &[f64] { todo!() }
+    pub fn nodes_kev(&self) -> &[f64] {
+        &self.nodes_kev
+    }
+    /// Photoelectric cross section (cm²/g) at the nodes of [`Element::nodes_kev`] (at an edge:
+    /// the value below, then the value above).
+    pub fn photo_nodes_cm2_g(&self) -> &[f64] {
+        &self.photo
+    }
+    /// Coherent cross section (cm²/g) at the nodes of [`Element::nodes_kev`].
+    pub fn coherent_nodes_cm2_g(&self) -> &[f64] {
+        &self.coherent
+    }
+    /// Incoherent cross section (cm²/g) at the nodes of [`Element::nodes_kev`].
+    pub fn incoherent_nodes_cm2_g(&self) -> &[f64] {
+        &self.incoherent
+    }
+    /// Shell shares (K, L1, L2, L3) at the nodes of [`Element::nodes_kev`].
+    pub fn photo_shell_share_nodes(&self) -> &[[f64; 4]] {
+        &self.shares
+    }
     /// All absorption edges inside the data range (keV), ascending (K, L, M, … as tabulated).
-    pub fn edges_kev(&self) -> &[f64] { todo!() }
+    ///
+    /// These are the energies where the photo cross section jumps, i.e. the tabulation's own edge
+    /// energies; they lie within a few eV (K, L) to a few per cent (some M, N edges of heavy
+    /// elements) of the binding energies in [`ShellData::edge_kev`].
+    pub fn edges_kev(&self) -> &[f64] {
+        &self.edges_kev
+    }
+    /// For each entry of [`Element::edges_kev`], the shell it belongs to in xraylib's numbering
+    /// (0 K, 1–3 L1–L3, 4–8 M1–M5, 9–15 N1–N7, …; the shell whose binding energy is nearest).
+    pub fn edge_shell_numbers(&self) -> &[u32] {
+        &self.edge_shells
+    }
+
+    /// Interval k of the x grid containing x (0 < x < x_last), by direct index.
+    #[inline]
+    fn locate_x(&self, x: f64) -> usize {
+        let n = self.x_nodes.len();
+        if x < self.x_nodes[1] {
+            return 0;
+        }
+        let mut k = (((x.ln() - self.ln_x_first) * self.x_intervals_per_ln) as usize + 1).min(n - 2);
+        // Rounding of the logarithm can put x one interval off.
+        while k + 2 < n && self.x_nodes[k + 1] <= x {
+            k += 1;
+        }
+        while k > 1 && self.x_nodes[k] > x {
+            k -= 1;
+        }
+        k
+    }
+
+    /// F or S at x, clamped to [0, Z] (log-log interpolation between nodes equal to Z could
+    /// exceed Z in the last bit).
+    #[inline]
+    fn scatter_value(&self, f: &ScatterFunction, x: f64) -> f64 {
+        self.scatter_interpolate(f, x).clamp(0.0, self.z as f64)
+    }
+
+    #[inline]
+    fn scatter_interpolate(&self, f: &ScatterFunction, x: f64) -> f64 {
+        let n = self.x_nodes.len();
+        if x <= 0.0 {
+            return f.values[0];
+        }
+        if x >= self.x_nodes[n - 1] {
+            return f.values[n - 1];
+        }
+        let k = self.locate_x(x);
+        if f.log_log[k] {
+            let t = (x.ln() - self.ln_x[k]) * self.inv_dln_x[k];
+            (f.ln_values[k] + t * (f.ln_values[k + 1] - f.ln_values[k])).exp()
+        } else {
+            let (x0, x1) = (self.x_nodes[k], self.x_nodes[k + 1]);
+            f.values[k] + (f.values[k + 1] - f.values[k]) * (x - x0) / (x1 - x0)
+        }
+    }
+
     /// Atomic form factor F(x, Z), x = sin(θ/2)/λ in 1/Å; clamped to [0, Z].
-    pub fn form_factor(&self, x_inv_angstrom: f64) -> f64 { let _ = x_inv_angstrom; todo!() }
+    ///
+    /// Tabulated from xraylib's FF_Rayl with F(0) = Z; values below 0 (a few light elements at
+    /// large x) are stored as 0. Beyond the last node (100 1/Å) the last value is returned.
+    pub fn form_factor(&self, x_inv_angstrom: f64) -> f64 {
+        self.scatter_value(&self.form_factor, x_inv_angstrom)
+    }
     /// Incoherent scattering function S(x, Z); clamped to [0, Z].
-    pub fn incoherent_function(&self, x_inv_angstrom: f64) -> f64 { let _ = x_inv_angstrom; todo!() }
+    ///
+    /// Tabulated from xraylib's SF_Compt (first nonzero node 1e-3 1/Å, where it is defined) with
+    /// S(0) = 0; values above Z (a slight overshoot at large x) are stored as Z.
+    pub fn incoherent_function(&self, x_inv_angstrom: f64) -> f64 {
+        self.scatter_value(&self.incoherent_function, x_inv_angstrom)
+    }
     /// The momentum-transfer nodes (1/Å) on which F and S are tabulated, ascending, first node 0.
-    pub fn x_nodes_inv_angstrom(&self) -> &[f64] { todo!() }
+    pub fn x_nodes_inv_angstrom(&self) -> &[f64] {
+        &self.x_nodes
+    }
+    /// F(x, Z) at the nodes of [`Element::x_nodes_inv_angstrom`].
+    pub fn form_factor_nodes(&self) -> &[f64] {
+        &self.form_factor.values
+    }
+    /// S(x, Z) at the nodes of [`Element::x_nodes_inv_angstrom`].
+    pub fn incoherent_function_nodes(&self) -> &[f64] {
+        &self.incoherent_function.values
+    }
     /// Data for K, L1, L2, L3 in that order.
-    pub fn shells(&self) -> &[ShellData; 4] { todo!() }
+    pub fn shells(&self) -> &[ShellData; 4] {
+        &self.shells
+    }
+    /// The line of a followed shell with IUPAC label `label` (e.g. "KL3" for Kα1, "KM3" for
+    /// Kβ1, "L3M5" for Lα1), if tabulated.
+    pub fn line(&self, shell: Shell, label: &str) -> Option<&Line> {
+        let s = shell.index()?;
+        let i = self.line_labels[s].iter().position(|l| l == label)?;
+        Some(&self.shells[s].lines[i])
+    }
+    /// IUPAC labels of the lines of a followed shell, in the order of [`ShellData::lines`].
+    pub fn line_labels(&self, shell: Shell) -> &[String] {
+        match shell.index() {
+            Some(s) => &self.line_labels[s],
+            None => &[],
+        }
+    }
 }
 
 /// All elements Z = 1..=98, parsed once from the embedded tables.
 pub struct ElementTable {
-    // private
+    elements: Vec<Element>,
+    provenance: Provenance,
 }
 
 impl ElementTable {
     /// The element with atomic number `z` (1..=98).
-    pub fn get(&self, z: u32) -> Result<&Element, XsError> { let _ = z; todo!() }
+    pub fn get(&self, z: u32) -> Result<&Element, XsError> {
+        if z == 0 {
+            return Err(XsError::NoSuchElement(z));
+        }
+        self.elements.get(z as usize - 1).ok_or(XsError::NoSuchElement(z))
+    }
     /// The element with chemical symbol `symbol` (case as in the periodic table, e.g. "Pb").
-    pub fn by_symbol(&self, symbol: &str) -> Result<&Element, XsError> { let _ = symbol; todo!() }
+    pub fn by_symbol(&self, symbol: &str) -> Result<&Element, XsError> {
+        self.elements
+            .iter()
+            .find(|e| e.symbol == symbol)
+            .ok_or_else(|| XsError::UnknownSymbol(symbol.to_string()))
+    }
     /// Where the tables came from.
-    pub fn provenance(&self) -> &crate::Provenance { todo!() }
+    pub fn provenance(&self) -> &crate::Provenance {
+        &self.provenance
+    }
+    /// All elements, Z = 1..=98 in order.
+    pub fn all(&self) -> &[Element] {
+        &self.elements
+    }
+
+    /// Parses a table file (format version [`TABLE_FORMAT_VERSION`]) and its provenance.
+    pub fn parse(bytes: &[u8], provenance: Provenance) -> Result<ElementTable, TableFormatError> {
+        let mut r = Reader { bytes, pos: 0 };
+        if r.take(8, "magic")? != MAGIC {
+            return Err(TableFormatError::Header("not a dosemill element table (bad magic bytes)".into()));
+        }
+        let version = r.u32("format version")?;
+        if version != TABLE_FORMAT_VERSION {
+            return Err(TableFormatError::Header(format!(
+                "format version {version}, this build reads version {TABLE_FORMAT_VERSION}"
+            )));
+        }
+        let n_elements = r.u32("element count")? as usize;
+        let e_min = r.f64("e_min")?;
+        let e_max = r.f64("e_max")?;
+        if e_min != E_MIN_KEV || e_max != E_MAX_KEV {
+            return Err(TableFormatError::Header(format!(
+                "energy range {e_min}–{e_max} keV, expected {E_MIN_KEV}–{E_MAX_KEV} keV"
+            )));
+        }
+        let n_intervals = r.u32("uniform interval count")? as usize;
+        let n_x = r.u32("x node count")? as usize;
+        let x_nodes = r.f64s(n_x, "x nodes")?;
+        if n_x < 3 || x_nodes[0] != 0.0 || x_nodes.windows(2).any(|w| w[1] <= w[0]) {
+            return Err(TableFormatError::Header("x grid must start at 0 and increase".into()));
+        }
+        let ln_x: Vec<f64> = x_nodes.iter().map(|x| if *x > 0.0 { x.ln() } else { f64::NEG_INFINITY }).collect();
+        let ln_x_first = ln_x[1];
+        let x_intervals_per_ln = (n_x - 2) as f64 / (ln_x[n_x - 1] - ln_x_first);
+        let inv_dln_x: Vec<f64> = (0..n_x - 1)
+            .map(|i| if i == 0 { 0.0 } else { 1.0 / (ln_x[i + 1] - ln_x[i]) })
+            .collect();
+        let ln_e_min = e_min.ln();
+        let n_buckets = n_intervals * BUCKETS_PER_INTERVAL;
+        let buckets_per_ln = n_buckets as f64 / (e_max.ln() - ln_e_min);
+
+        let mut elements = Vec::with_capacity(n_elements);
+        for expect_z in 1..=n_elements as u32 {
+            let z = r.u32("atomic number")?;
+            if z != expect_z {
+                return Err(TableFormatError::Invalid { z, what: format!("expected element {expect_z} here") });
+            }
+            let sym = r.take(4, "symbol")?;
+            let symbol: String = sym.iter().take_while(|b| **b != 0).map(|b| *b as char).collect();
+            let atomic_weight = r.f64("atomic weight")?;
+            let n = r.u32("node count")? as usize;
+            let nodes_kev = r.f64s(n, "energy nodes")?;
+            let photo = r.f64s(n, "photo")?;
+            let coherent = r.f64s(n, "coherent")?;
+            let incoherent = r.f64s(n, "incoherent")?;
+            let mut share_cols = Vec::with_capacity(4);
+            for _ in 0..4 {
+                share_cols.push(r.f64s(n, "shell shares")?);
+            }
+            let n_edges = r.u32("edge count")? as usize;
+            let mut edges_kev = Vec::with_capacity(n_edges);
+            let mut edge_shells = Vec::with_capacity(n_edges);
+            for _ in 0..n_edges {
+                edges_kev.push(r.f64("edge energy")?);
+                edge_shells.push(r.u32("edge shell")?);
+            }
+            let ff = r.f64s(n_x, "form factor")?;
+            let sf = r.f64s(n_x, "incoherent function")?;
+            let mut shells = Vec::with_capacity(4);
+            let mut line_labels: [Vec<String>; 4] = Default::default();
+            for (s, labels) in line_labels.iter_mut().enumerate() {
+                let code = r.u32("shell code")?;
+                if code as usize != s {
+                    return Err(TableFormatError::Invalid { z, what: format!("shell record {s} has code {code}") });
+                }
+                let edge_kev = r.f64("shell edge")?;
+                let fluorescence_yield = r.f64("fluorescence yield")?;
+                let ck = (r.f64("Coster-Kronig")?, r.f64("Coster-Kronig")?);
+                let n_lines = r.u32("line count")? as usize;
+                let mut lines = Vec::with_capacity(n_lines);
+                for _ in 0..n_lines {
+                    let kev = r.f64("line energy")?;
+                    let share = r.f64("line share")?;
+                    let from_code = r.u32("line origin")?;
+                    let from = Shell::from_code(from_code).ok_or_else(|| TableFormatError::Invalid {
+                        z,
+                        what: format!("line origin code {from_code}"),
+                    })?;
+                    let label = r.take(8, "line label")?;
+                    labels.push(label.iter().take_while(|b| **b != 0).map(|b| *b as char).collect());
+                    lines.push(Line { kev, share, from });
+                }
+                shells.push(ShellData {
+                    shell: Shell::from_code(code).expect("code checked above"),
+                    edge_kev,
+                    fluorescence_yield,
+                    lines,
+                    coster_kronig: ck,
+                });
+            }
+            let shells: [ShellData; 4] = shells.try_into().expect("four shells read");
+
+            // Validate what the interpolation relies on.
+            if n < 2 || nodes_kev[0] != e_min || nodes_kev[n - 1] != e_max {
+                return Err(TableFormatError::Invalid { z, what: "energy grid must span the data range".into() });
+            }
+            if nodes_kev.windows(2).any(|w| w[1] < w[0]) || nodes_kev.windows(3).any(|w| w[0] == w[2]) {
+                return Err(TableFormatError::Invalid { z, what: "energy nodes must ascend (edges twice)".into() });
+            }
+            if photo.iter().chain(&coherent).chain(&incoherent).any(|v| !(*v > 0.0 && v.is_finite())) {
+                return Err(TableFormatError::Invalid { z, what: "cross sections must be positive".into() });
+            }
+
+            let ln_nodes: Vec<f64> = nodes_kev.iter().map(|e| e.ln()).collect();
+            let inv_dln: Vec<f64> = (0..n - 1)
+                .map(|i| {
+                    let d = ln_nodes[i + 1] - ln_nodes[i];
+                    if d > 0.0 { 1.0 / d } else { 0.0 }
+                })
+                .collect();
+            let bucket_of = |e: f64| ((e.ln() - ln_e_min) * buckets_per_ln) as usize;
+            // bucket_first[b]: the last node whose bucket is below b (0 if none). Every energy of
+            // bucket b lies at or above that node, so the forward step in `locate` finds the
+            // interval; energies are compared exactly in keV there.
+            let mut bucket_first = vec![0u32; n_buckets + 1];
+            let mut i = 0usize;
+            for (b, slot) in bucket_first.iter_mut().enumerate() {
+                while i + 1 < n - 1 && bucket_of(nodes_kev[i + 1]) < b {
+                    i += 1;
+                }
+                *slot = i as u32;
+            }
+            let shares = (0..n)
+                .map(|k| [share_cols[0][k], share_cols[1][k], share_cols[2][k], share_cols[3][k]])
+                .collect();
+            elements.push(Element {
+                z,
+                symbol,
+                atomic_weight,
+                ln_photo: photo.iter().map(|v| v.ln()).collect(),
+                ln_coherent: coherent.iter().map(|v| v.ln()).collect(),
+                ln_incoherent: incoherent.iter().map(|v| v.ln()).collect(),
+                photo,
+                coherent,
+                incoherent,
+                nodes_kev,
+                ln_nodes,
+                inv_dln,
+                shares,
+                bucket_first,
+                ln_e_min,
+                buckets_per_ln,
+                edges_kev,
+                edge_shells,
+                form_factor: ScatterFunction::new(ff, &x_nodes),
+                incoherent_function: ScatterFunction::new(sf, &x_nodes),
+                x_nodes: x_nodes.clone(),
+                ln_x: ln_x.clone(),
+                inv_dln_x: inv_dln_x.clone(),
+                ln_x_first,
+                x_intervals_per_ln,
+                shells,
+                line_labels,
+            });
+        }
+        if r.take(8, "end marker")? != END_MAGIC || r.pos != bytes.len() {
+            return Err(TableFormatError::Header(format!("end marker missing or trailing bytes after byte {}", r.pos)));
+        }
+        Ok(ElementTable { elements, provenance })
+    }
+}
+
+/// Little-endian reader over the table bytes.
+struct Reader<'a> {
+    bytes: &'a [u8],
+    pos: usize,
+}
+
+impl<'a> Reader<'a> {
+    fn take(&mut self, n: usize, what: &'static str) -> Result<&'a [u8], TableFormatError> {
+        let end = self.pos.checked_add(n).filter(|e| *e <= self.bytes.len());
+        match end {
+            Some(end) => {
+                let s = &self.bytes[self.pos..end];
+                self.pos = end;
+                Ok(s)
+            }
+            None => Err(TableFormatError::Truncated { offset: self.pos, what }),
+        }
+    }
+    fn u32(&mut self, what: &'static str) -> Result<u32, TableFormatError> {
+        Ok(u32::from_le_bytes(self.take(4, what)?.try_into().expect("4 bytes")))
+    }
+    fn f64(&mut self, what: &'static str) -> Result<f64, TableFormatError> {
+        Ok(f64::from_le_bytes(self.take(8, what)?.try_into().expect("8 bytes")))
+    }
+    fn f64s(&mut self, n: usize, what: &'static str) -> Result<Vec<f64>, TableFormatError> {
+        let raw = self.take(n.checked_mul(8).ok_or(TableFormatError::Truncated { offset: self.pos, what })?, what)?;
+        Ok(raw.chunks_exact(8).map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes"))).collect())
+    }
+}
+
+/// The embedded table file (`xsdata/data/elements.bin`), for checks against its provenance.
+pub fn embedded_table_bytes() -> &'static [u8] {
+    TABLE_BYTES
 }
 
 /// The embedded element tables (parsed on first use, then shared).
-pub fn elements() -> &'static ElementTable { todo!() }
+pub fn elements() -> &'static ElementTable {
+    static TABLE: OnceLock<ElementTable> = OnceLock::new();
+    TABLE.get_or_init(|| {
+        let provenance = Provenance::from_toml_str(PROVENANCE_TOML)
+            .unwrap_or_else(|e| panic!("embedded xsdata/data/provenance.toml: {e}"));
+        ElementTable::parse(TABLE_BYTES, provenance).unwrap_or_else(|e| panic!("embedded xsdata/data/elements.bin: {e}"))
+    })
+}

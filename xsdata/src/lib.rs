@@ -13,7 +13,8 @@ pub mod library;
 pub mod derived;
 
 pub use element::{elements, Element, ElementTable, Line, Shell, ShellData, XsError};
-pub use provenance::Provenance;
+pub use element::{embedded_table_bytes, Interaction, TableFormatError, TABLE_FORMAT_VERSION, Z_MAX};
+pub use provenance::{Provenance, ProvenanceError};
 
 /// Lowest photon energy the tables cover (keV).
 pub const E_MIN_KEV: f64 = 1.0;
@@ -27,3 +28,7 @@ pub const ELECTRON_REST_KEV: f64 = 510.998_950;
 pub const CLASSICAL_ELECTRON_RADIUS_CM: f64 = 2.817_940_326_2e-13;
 /// Avogadro constant (1/mol).
 pub const AVOGADRO: f64 = 6.022_140_76e23;
+pub use material::{Material, MaterialError};
+pub use formula::{Formula, FormulaError};
+pub use library::{library, lookup, LibraryEntry};
+pub use derived::{coefficients, Coefficients};

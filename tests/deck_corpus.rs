@@ -421,3 +421,41 @@ fn schema_example_loads() {
         .output
         .ends_with("results/slab_study__kvp-60__thickness_cm-0.5.h5"));
 }
+
+/// With the real materials library every good deck's names resolve, and an unknown name gets
+/// the library's nearest name as the hint.
+#[test]
+fn library_names_resolve_with_the_built_in_library() {
+    for d in decks_in(&corpus("good")) {
+        if let Err(e) = deck::load_checked(&d) {
+            panic!(
+                "{}: {}",
+                d.display(),
+                e.iter()
+                    .map(|x| x.to_string())
+                    .collect::<Vec<_>>()
+                    .join("\n")
+            );
+        }
+    }
+    let errs =
+        deck::load_checked(&corpus("bad").join("unknown_library_material.toml")).unwrap_err();
+    assert_eq!(errs.len(), 1);
+    assert_eq!((errs[0].line, errs[0].column), (12, 12));
+    assert!(
+        errs[0]
+            .to_string()
+            .contains("`watr` is not a material of the library; did you mean `water`?"),
+        "{}",
+        errs[0]
+    );
+}
+
+/// One pass reports every independent error, in the order they appear in the file.
+#[test]
+fn many_errors_are_reported_in_file_order() {
+    let errs = deck::load(&corpus("bad").join("many_errors_one_pass.toml")).unwrap_err();
+    let lines: Vec<usize> = errs.iter().map(|e| e.line).collect();
+    assert!(errs.len() >= 5, "{errs:?}");
+    assert!(lines.windows(2).all(|w| w[0] <= w[1]), "{lines:?}");
+}

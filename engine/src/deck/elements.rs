@@ -131,6 +131,34 @@ mod tests {
         assert_eq!(theirs, SYMBOLS.to_vec());
     }
 
+    /// The deck's syntax check accepts and rejects the same formulas as the materials library's
+    /// parser (xsdata), so a deck that loads never fails later on its formula.
+    #[test]
+    fn formula_check_agrees_with_the_library_parser() {
+        for f in [
+            "H2O",
+            "CaCO3",
+            "Ca10(PO4)6(OH)2",
+            "C5H8O2",
+            "CsI",
+            "Gd2O2S",
+            "h2o",
+            "Xx2",
+            "H2O)",
+            "(H2O",
+            "",
+            "H-O",
+            "NaCl",
+        ] {
+            let ours = check_formula(f).is_ok();
+            let library = dosemill_xsdata::formula::Formula::parse(f).is_ok();
+            assert_eq!(
+                ours, library,
+                "formula `{f}`: deck check {ours}, library parser {library}"
+            );
+        }
+    }
+
     #[test]
     fn formulas() {
         assert_eq!(check_formula("H2O").unwrap(), vec!["H", "O"]);

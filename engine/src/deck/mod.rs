@@ -86,7 +86,7 @@ fn finish(
     mut errors: Vec<DeckError>,
 ) -> Result<Deck, Vec<DeckError>> {
     let Some(mut root) = tree else {
-        return Err(errors);
+        return Err(dedup(errors));
     };
     // Take the sweep out of the tree: the base point is the deck without it.
     let mut sweep_node = None;
@@ -108,7 +108,9 @@ fn finish(
     if !errors.is_empty() {
         return Err(dedup(errors));
     }
-    let Some(base) = base else { return Err(errors) };
+    let Some(base) = base else {
+        return Err(dedup(errors));
+    };
     let mut points = Vec::new();
     if !axes.is_empty() {
         let combos = sweep::combinations(&axes);
@@ -123,7 +125,7 @@ fn finish(
                 ),
                 Some("sweep fewer values, or split the study into several decks".into()),
             ));
-            return Err(errors);
+            return Err(dedup(errors));
         }
         let labels = sweep::labels(&axes);
         for combo in combos {
@@ -179,6 +181,8 @@ fn base_stem(output: &Path) -> String {
         .unwrap_or_else(|| "run".into())
 }
 
+/// Drop repeated errors (a sweep reports a bad value once, not once per combination) and order
+/// them as they appear: by file (in the order read), then line and column.
 fn dedup(errors: Vec<DeckError>) -> Vec<DeckError> {
     let mut out: Vec<DeckError> = Vec::new();
     for e in errors {
@@ -186,6 +190,13 @@ fn dedup(errors: Vec<DeckError>) -> Vec<DeckError> {
             out.push(e);
         }
     }
+    let mut files: Vec<PathBuf> = Vec::new();
+    for e in &out {
+        if !files.contains(&e.file) {
+            files.push(e.file.clone());
+        }
+    }
+    out.sort_by_key(|e| (files.iter().position(|f| *f == e.file), e.line, e.column));
     out
 }
 
@@ -231,4 +242,34 @@ pub fn expand(deck: &Deck) -> Vec<(Vec<(String, toml::Value)>, ResolvedDeck)> {
     } else {
         deck.points.clone()
     }
+}
+
+/// The built-in materials library as a lookup for [`validate_with`]: library names, aliases
+/// and element symbols (case-insensitive); an unknown name gets the nearest library names.
+pub fn library_lookup(name: &str) -> Result<(), String> {
+    use dosemill_xsdata::material::MaterialError;
+    match dosemill_xsdata::library::lookup(name) {
+        Ok(_) => Ok(()),
+        Err(MaterialError::UnknownMaterial { suggestions, .. }) => {
+            let mut msg = format!("`{name}` is not a material of the library");
+            if let Some((first, rest)) = suggestions.split_first() {
+                msg.push_str(&format!("; did you mean `{first}`?"));
+                if !rest.is_empty() {
+                    msg.push_str(&format!(" (also near: {})", rest.join(", ")));
+                }
+            } else {
+                msg.push_str("; `dosemill materials` lists the library");
+            }
+            Err(msg)
+        }
+        Err(other) => Err(other.to_string()),
+    }
+}
+
+/// [`load`], then [`validate_with`] against the built-in materials library: what `dosemill
+/// check` and `dosemill run` call before starting a photon.
+pub fn load_checked(path: &Path) -> Result<Deck, Vec<DeckError>> {
+    let deck = load(path)?;
+    validate_with(&deck, &library_lookup)?;
+    Ok(deck)
 }

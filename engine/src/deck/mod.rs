@@ -97,6 +97,7 @@ fn finish(
     }
     let mut walk = Walk::new(&files, path.to_path_buf());
     let base = walk.deck(&root);
+    let base_ok = walk.cx.errors.is_empty() && errors.is_empty();
     let mut axes = Vec::new();
     if let Some(s) = &sweep_node {
         axes = sweep::read_axes(&mut walk.cx, s, &root);
@@ -105,10 +106,9 @@ fn finish(
     let mut uses = std::mem::take(&mut walk.uses);
     let user_materials = std::mem::take(&mut walk.user_materials);
     let mut spectra = std::mem::take(&mut walk.spectra);
-    if !errors.is_empty() {
-        return Err(dedup(errors));
-    }
-    let Some(base) = base else {
+    // A broken base deck would repeat its errors in every combination: stop here. Bad sweep
+    // axes do not stop the valid axes from being checked.
+    let Some(base) = base.filter(|_| base_ok) else {
         return Err(dedup(errors));
     };
     let mut points = Vec::new();
@@ -156,9 +156,9 @@ fn finish(
                 points.push((values, r));
             }
         }
-        if !errors.is_empty() {
-            return Err(dedup(errors));
-        }
+    }
+    if !errors.is_empty() {
+        return Err(dedup(errors));
     }
     let mut all = files.files.clone();
     all.extend(spectra);

@@ -1897,15 +1897,14 @@ fn bins(
     }
     let n = (hi - lo) / w;
     if n > MAX_BINS as f64 {
+        let wk = if unit == "cm" {
+            "bin_width_cm"
+        } else {
+            "bin_width_kev"
+        };
         cx.err(
-            t.get(if unit == "cm" {
-                "bin_width_cm"
-            } else {
-                "bin_width_kev"
-            })
-            .unwrap_or(hn)
-            .loc,
-            &t.kp(hi_key),
+            t.get(wk).unwrap_or(hn).loc,
+            &t.kp(wk),
             format!(
                 "{:e} bins is more than the limit of {:e}",
                 n.round(),

@@ -63,8 +63,7 @@ fn demo_file() -> ResultFile {
         "demo curve peaks where the summary check expects"
     );
     let sigma: Vec<f64> = dose.iter().map(|d| 0.02 * d).collect();
-    pdd.add_dataset(Dataset::f64_1d("dose", dose, "Gy"));
-    pdd.add_dataset(Dataset::f64_1d("dose_sigma", sigma, "Gy"));
+    pdd.add_with_sigma("dose", &[40], dose, sigma, "Gy");
     pdd.attach_axis("dose", 0, "depth_edges_cm", &edges, "cm")
         .unwrap();
     f.add_group(pdd);

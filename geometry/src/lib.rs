@@ -25,6 +25,7 @@
 
 mod error;
 mod geometry;
+pub mod phantom;
 mod region;
 mod slab;
 mod vec3;

@@ -118,6 +118,7 @@ impl Boundary {
 
 /// An axis-aligned box `[min, max]` (cm).
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Aabb {
     /// Lowest corner (cm).
     pub min_cm: Vec3,
@@ -269,6 +270,7 @@ impl Aabb {
 
 /// The medium filling a region: an index into the engine's material list and a mass density.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Medium {
     /// Index into the engine's material list (the geometry knows nothing of physics).
     pub material: u16,
@@ -295,6 +297,7 @@ impl Medium {
 /// The world around an object: a box filled with vacuum or one medium (for example air).
 /// Photons leaving the world box escape.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct World {
     /// The medium filling the world outside the object; `None` is vacuum.
     pub medium: Option<Medium>,

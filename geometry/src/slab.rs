@@ -5,13 +5,15 @@
 //! boundary are never re-located. `step` looks only at the planes the direction points at, so
 //! a point on (or, after rounding, a hair outside) the face it has just crossed still steps
 //! correctly through its new region. [`SlabStack::locate`] is for starting points only and uses
-//! half-open layers `z_front ≤ z < z_back` with closed lateral faces `|x| ≤ half_x`.
+//! half-open layers `z_front ≤ z < z_back` with closed lateral faces `|x| ≤ half_x`; a ray
+//! from the world lying in the back plane of the last layer (`d.z == 0`) is likewise outside.
 //!
 //! Ties at edges and corners prefer the lateral exit. A ray entering the stack from the world
 //! must cross more than a rounding skin (10⁻¹² of the world's size) of it; a grazing touch of an
 //! edge or a face the photon has just left is not an entry. Every step therefore either moves
 //! the photon on or hands it to a region from which it can only move forward, and every ray
-//! ends in [`Region::ESCAPED`] after at most `layers + 3` steps.
+//! ends in [`Region::ESCAPED`] after at most `layers + 3` steps in exact arithmetic (with
+//! rounding, a ray grazing an edge may add a few tiny steps; never an unbounded number).
 
 use crate::region::{Aabb, Axis, Boundary, Medium, Region, World};
 use crate::{GeometryError, Vec3};
@@ -19,6 +21,7 @@ use serde::{Deserialize, Serialize};
 
 /// One layer of a slab stack.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Layer {
     /// Index into the engine's material list.
     pub material: u16,
@@ -28,8 +31,9 @@ pub struct Layer {
     pub thickness_cm: f64,
 }
 
-/// Lateral extent of the layers.
+/// Lateral extent of the layers. In TOML: `"infinite"` or `{ box = { half_x_cm = …, half_y_cm = … } }`.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case", deny_unknown_fields)]
 pub enum Lateral {
     /// The layers fill the world box laterally (infinite slabs clipped by the world).
     Infinite,

@@ -4,7 +4,9 @@ use serde::{Deserialize, Serialize};
 use std::ops::{Add, AddAssign, Mul, Neg, Sub};
 
 /// A 3-vector: a position in cm or a direction (unit length where documented).
+/// Serialised as an array `[x, y, z]`.
 #[derive(Clone, Copy, Debug, PartialEq, Default, Serialize, Deserialize)]
+#[serde(from = "[f64; 3]", into = "[f64; 3]")]
 pub struct Vec3 {
     /// x component.
     pub x: f64,
@@ -143,6 +145,20 @@ impl Vec3 {
     #[inline]
     pub fn max(self, o: Vec3) -> Vec3 {
         Vec3::new(self.x.max(o.x), self.y.max(o.y), self.z.max(o.z))
+    }
+}
+
+impl From<[f64; 3]> for Vec3 {
+    #[inline]
+    fn from(a: [f64; 3]) -> Self {
+        Vec3::new(a[0], a[1], a[2])
+    }
+}
+
+impl From<Vec3> for [f64; 3] {
+    #[inline]
+    fn from(v: Vec3) -> Self {
+        [v.x, v.y, v.z]
     }
 }
 

@@ -1,8 +1,11 @@
 //! Reading and writing voxel grids: raw little-endian arrays described by a TOML header, and
 //! HDF5 files in a layout of our own. See `geometry/README.md` for both layouts.
 //!
-//! Memory: arrays are read straight into their final vectors (u8 directly; u16 and f32 through
-//! a 64 KiB staging buffer), so loading a grid needs its final size plus 64 KiB, not twice it.
+//! Memory: raw arrays are read straight into their final vectors (u8 directly; u16 and f32
+//! through a 64 KiB staging buffer), so loading a raw grid needs its final size plus 64 KiB,
+//! not twice it. HDF5 files are opened for on-demand reading (not buffered whole) and each
+//! dataset is decoded into its vector by the HDF5 library. Writing HDF5 copies the arrays into
+//! the library's file builder (one transient copy) and encodes straight to the file.
 
 use crate::voxel::{GridLayout, MaterialIndices, VoxelGrid};
 use crate::{GeometryError, Vec3};
@@ -397,8 +400,11 @@ pub fn write_hdf5_voxels(
             .with_f32_data(d)
             .with_shape(&shape);
     }
-    let bytes = b.finish().map_err(h5_err(path))?;
-    write_atomic(path, overwrite, |w| w.write_all(&bytes))
+    // Encode straight into the temporary file rather than into a byte vector first.
+    write_atomic(path, overwrite, |w| {
+        b.finish_to(w)
+            .map_err(|e| std::io::Error::other(e.to_string()))
+    })
 }
 
 /// Reads a voxel grid from an HDF5 file in the layout of [`hdf5_names`]. The file is read

@@ -4,7 +4,7 @@ use std::path::PathBuf;
 
 use crate::cli::EXIT_BAD_INPUT;
 use crate::spectrum::{
-    compute_spectrum, export, plot, solve_added_filtration, Anode, BeamQuality, Filter, InherentFiltration,
+    compute_spectrum, export, plot, solve_added_filtration, Anode, BeamQuality, Filter,
     SpectrumError, SpectrumOptions, Tube,
 };
 
@@ -95,7 +95,7 @@ fn build(args: &Args) -> Result<(Tube, SpectrumOptions), SpectrumError> {
         anode_angle_deg: args.anode_angle_deg,
         filters,
         ripple_percent: args.ripple_percent,
-        inherent: Some(InherentFiltration { ..inherent }),
+        inherent: Some(inherent),
     };
     tube.validate()?;
     let options = SpectrumOptions {
@@ -202,9 +202,10 @@ pub fn run(args: Args) -> anyhow::Result<i32> {
         println!("  added {} for a first HVL of {t} mm Al: {:.4} mm", args.solve_material, mm);
     }
     println!();
-    println!("  limits: straight electron paths (no diffusion or backscatter), isotropic emission (no heel");
-    println!("  effect), Kramers normalisation k = 1.1e-9 /V (absolute output about ±30–40 %), line");
-    println!("  intensities about ±50 %; narrow-beam attenuation throughout.");
+    println!("  model: Kramers cross section along a Thomson–Whiddington path, Archard electron diffusion");
+    println!("  and backscatter, self-absorption at the anode angle, Worthington–Tomlin K/L ionisation.");
+    println!("  limits: isotropic emission (no heel effect), Kramers constant 1.1e-9 /V (absolute output");
+    println!("  about ±30–40 %), line intensities about ±50 %, narrow-beam attenuation throughout.");
     Ok(0)
 }
 

@@ -84,7 +84,10 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
     let field_inline = |fl: &Field| {
         let mut t = InlineTable::new();
         match fl {
-            Field::Rectangle { width_cm, height_cm } => {
+            Field::Rectangle {
+                width_cm,
+                height_cm,
+            } => {
                 t.insert("shape", "rectangle".into());
                 t.insert("width_cm", f(*width_cm));
                 t.insert("height_cm", f(*height_cm));
@@ -97,18 +100,30 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
         t
     };
     match &r.source.shape {
-        SourceShape::Pencil { position_cm, direction } => {
+        SourceShape::Pencil {
+            position_cm,
+            direction,
+        } => {
             src["kind"] = value("pencil");
             src["position_cm"] = value(arr_f(position_cm));
             src["direction"] = value(arr_f(direction));
         }
-        SourceShape::Parallel { position_cm, direction, field } => {
+        SourceShape::Parallel {
+            position_cm,
+            direction,
+            field,
+        } => {
             src["kind"] = value("parallel");
             src["position_cm"] = value(arr_f(position_cm));
             src["direction"] = value(arr_f(direction));
             src["field"] = value(field_inline(field));
         }
-        SourceShape::Point { position_cm, direction, field, field_distance_cm } => {
+        SourceShape::Point {
+            position_cm,
+            direction,
+            field,
+            field_distance_cm,
+        } => {
             src["kind"] = value("point");
             src["position_cm"] = value(arr_f(position_cm));
             src["direction"] = value(arr_f(direction));
@@ -189,13 +204,18 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
             g["world"] = value(world(v.world));
             match &v.content {
                 VoxelContent::Hdf5 { path } => g["file"] = value(path_str(path)),
-                VoxelContent::Raw { path, grid, bytes_per_voxel, labels } => {
+                VoxelContent::Raw {
+                    path,
+                    grid,
+                    bytes_per_voxel,
+                    labels,
+                } => {
                     g["file"] = value(path_str(path));
                     grid_into(&mut g, grid);
                     g["bytes_per_voxel"] = value(*bytes_per_voxel as i64);
                     let mut it = InlineTable::new();
                     for (l, m) in labels {
-                        it.insert(&l.to_string(), m.name.as_str().into());
+                        it.insert(l.to_string().as_str(), m.name.as_str().into());
                     }
                     g["labels"] = value(it);
                 }
@@ -219,7 +239,11 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                                 t["kind"] = value("sphere");
                                 t["radius_cm"] = value(*radius_cm);
                             }
-                            ShapeForm::Cylinder { radius_cm, length_cm, axis } => {
+                            ShapeForm::Cylinder {
+                                radius_cm,
+                                length_cm,
+                                axis,
+                            } => {
                                 t["kind"] = value("cylinder");
                                 t["radius_cm"] = value(*radius_cm);
                                 t["length_cm"] = value(*length_cm);
@@ -252,19 +276,31 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
             ScoreKind::LayerEnergy => t["kind"] = value("layer_energy"),
             ScoreKind::Escape => t["kind"] = value("escape"),
             ScoreKind::InteractionCounts => t["kind"] = value("interaction_counts"),
-            ScoreKind::DepthDose { z_min_cm, z_max_cm, bin_width_cm } => {
+            ScoreKind::DepthDose {
+                z_min_cm,
+                z_max_cm,
+                bin_width_cm,
+            } => {
                 t["kind"] = value("depth_dose");
                 t["z_min_cm"] = value(*z_min_cm);
                 t["z_max_cm"] = value(*z_max_cm);
                 t["bin_width_cm"] = value(*bin_width_cm);
             }
-            ScoreKind::TransmittedSpectrum { energy_min_kev, energy_max_kev, bin_width_kev } => {
+            ScoreKind::TransmittedSpectrum {
+                energy_min_kev,
+                energy_max_kev,
+                bin_width_kev,
+            } => {
                 t["kind"] = value("transmitted_spectrum");
                 t["energy_min_kev"] = value(*energy_min_kev);
                 t["energy_max_kev"] = value(*energy_max_kev);
                 t["bin_width_kev"] = value(*bin_width_kev);
             }
-            ScoreKind::AirKerma { position_cm, normal_axis, radius_cm } => {
+            ScoreKind::AirKerma {
+                position_cm,
+                normal_axis,
+                radius_cm,
+            } => {
                 t["kind"] = value("air_kerma");
                 t["position_cm"] = value(arr_f(position_cm));
                 t["normal_axis"] = value(normal_axis.name());
@@ -289,7 +325,10 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                 match &d.response {
                     Response::EnergyFluence => t["response"] = value("energy_fluence"),
                     Response::PhotonFluence => t["response"] = value("photon_fluence"),
-                    Response::Absorbed { material, thickness_cm } => {
+                    Response::Absorbed {
+                        material,
+                        thickness_cm,
+                    } => {
                         t["response"] = value("absorbed");
                         let mut it = InlineTable::new();
                         it.insert("material", material.name.as_str().into());
@@ -303,7 +342,10 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                     it.insert("strips_per_cm", f(g.strips_per_cm));
                     it.insert("strip_width_cm", f(g.strip_width_cm));
                     it.insert("strip_material", g.strip_material.name.as_str().into());
-                    it.insert("interspace_material", g.interspace_material.name.as_str().into());
+                    it.insert(
+                        "interspace_material",
+                        g.interspace_material.name.as_str().into(),
+                    );
                     if let Some(fd) = g.focus_distance_cm {
                         it.insert("focus_distance_cm", f(fd));
                     }

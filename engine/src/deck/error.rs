@@ -104,7 +104,10 @@ pub(crate) fn nearest<'a>(word: &str, candidates: &[&'a str]) -> Option<&'a str>
             return Some(c);
         }
     }
-    candidates.iter().copied().find(|c| c.starts_with(&format!("{lw}_")))
+    candidates
+        .iter()
+        .copied()
+        .find(|c| c.starts_with(&format!("{lw}_")))
 }
 
 /// Unit suffixes that appear in key names, longest first, with what they measure and their

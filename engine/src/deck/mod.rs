@@ -29,7 +29,10 @@ pub use error::DeckError;
 pub use sweep::{SweepAxis, MAX_COMBINATIONS};
 pub use tree::{FileRole, SourceFile};
 pub use types::*;
-pub use validate::{BYTES_PER_PIXEL_ESTIMATE, BYTES_PER_VOXEL_ESTIMATE, MAX_BINS, MAX_DETECTOR_PIXELS, MAX_HISTORIES, MAX_VOXELS};
+pub use validate::{
+    BYTES_PER_PIXEL_ESTIMATE, BYTES_PER_VOXEL_ESTIMATE, MAX_BINS, MAX_DETECTOR_PIXELS,
+    MAX_HISTORIES, MAX_VOXELS,
+};
 
 use std::path::{Path, PathBuf};
 use tree::{Files, Node, Val};
@@ -48,6 +51,7 @@ pub struct Deck {
     pub sweep: Vec<SweepAxis>,
     points: Vec<(Vec<(String, toml::Value)>, ResolvedDeck)>,
     uses: Vec<MaterialUse>,
+    user_materials: Vec<String>,
     located: Files,
 }
 
@@ -55,7 +59,14 @@ pub struct Deck {
 pub fn load(path: &Path) -> Result<Deck, Vec<DeckError>> {
     let mut files = Files::default();
     let mut errors = Vec::new();
-    let tree = tree::load_tree(path, FileRole::Deck, &mut files, &mut Vec::new(), None, &mut errors);
+    let tree = tree::load_tree(
+        path,
+        FileRole::Deck,
+        &mut files,
+        &mut Vec::new(),
+        None,
+        &mut errors,
+    );
     finish(path, tree, files, errors)
 }
 
@@ -68,8 +79,15 @@ pub fn load_str(text: &str, path: &Path) -> Result<Deck, Vec<DeckError>> {
     finish(path, tree, files, errors)
 }
 
-fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckError>) -> Result<Deck, Vec<DeckError>> {
-    let Some(mut root) = tree else { return Err(errors) };
+fn finish(
+    path: &Path,
+    tree: Option<Node>,
+    files: Files,
+    mut errors: Vec<DeckError>,
+) -> Result<Deck, Vec<DeckError>> {
+    let Some(mut root) = tree else {
+        return Err(dedup(errors));
+    };
     // Take the sweep out of the tree: the base point is the deck without it.
     let mut sweep_node = None;
     if let Val::Table(entries) = &mut root.val {
@@ -79,24 +97,35 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
     }
     let mut walk = Walk::new(&files, path.to_path_buf());
     let base = walk.deck(&root);
+    let base_ok = walk.cx.errors.is_empty() && errors.is_empty();
     let mut axes = Vec::new();
     if let Some(s) = &sweep_node {
         axes = sweep::read_axes(&mut walk.cx, s, &root);
     }
     errors.append(&mut walk.cx.errors);
     let mut uses = std::mem::take(&mut walk.uses);
+    let user_materials = std::mem::take(&mut walk.user_materials);
     let mut spectra = std::mem::take(&mut walk.spectra);
-    if !errors.is_empty() {
+    // A broken base deck would repeat its errors in every combination: stop here. Bad sweep
+    // axes do not stop the valid axes from being checked.
+    let Some(base) = base.filter(|_| base_ok) else {
         return Err(dedup(errors));
-    }
-    let Some(base) = base else { return Err(errors) };
+    };
     let mut points = Vec::new();
     if !axes.is_empty() {
         let combos = sweep::combinations(&axes);
         if combos.len() > MAX_COMBINATIONS {
             let s = sweep_node.as_ref().expect("sweep present");
-            errors.push(files.error(s.key_or_value(), "sweep", format!("the sweep expands to {} combinations (limit {MAX_COMBINATIONS})", combos.len()), Some("sweep fewer values, or split the study into several decks".into())));
-            return Err(errors);
+            errors.push(files.error(
+                s.key_or_value(),
+                "sweep",
+                format!(
+                    "the sweep expands to {} combinations (limit {MAX_COMBINATIONS})",
+                    combos.len()
+                ),
+                Some("sweep fewer values, or split the study into several decks".into()),
+            ));
+            return Err(dedup(errors));
         }
         let labels = sweep::labels(&axes);
         for combo in combos {
@@ -107,7 +136,11 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
                 let ax = &axes[ai];
                 sweep::set_path(&mut t, &ax.key_path, ax.nodes[vi].clone(), ax.key_loc);
                 values.push((ax.key_path.clone(), ax.values[vi].clone()));
-                name.push_str(&format!("__{}-{}", labels[ai], sweep::value_label(&ax.values[vi])));
+                name.push_str(&format!(
+                    "__{}-{}",
+                    labels[ai],
+                    sweep::value_label(&ax.values[vi])
+                ));
             }
             let mut w = Walk::new(&files, path.to_path_buf());
             let r = w.deck(&t);
@@ -123,19 +156,33 @@ fn finish(path: &Path, tree: Option<Node>, files: Files, mut errors: Vec<DeckErr
                 points.push((values, r));
             }
         }
-        if !errors.is_empty() {
-            return Err(dedup(errors));
-        }
+    }
+    if !errors.is_empty() {
+        return Err(dedup(errors));
     }
     let mut all = files.files.clone();
     all.extend(spectra);
-    Ok(Deck { path: path.to_path_buf(), files: all, resolved: base, sweep: axes, points, uses, located: files })
+    Ok(Deck {
+        path: path.to_path_buf(),
+        files: all,
+        resolved: base,
+        sweep: axes,
+        points,
+        uses,
+        user_materials,
+        located: files,
+    })
 }
 
 fn base_stem(output: &Path) -> String {
-    output.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "run".into())
+    output
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "run".into())
 }
 
+/// Drop repeated errors (a sweep reports a bad value once, not once per combination) and order
+/// them as they appear: by file (in the order read), then line and column.
 fn dedup(errors: Vec<DeckError>) -> Vec<DeckError> {
     let mut out: Vec<DeckError> = Vec::new();
     for e in errors {
@@ -143,6 +190,13 @@ fn dedup(errors: Vec<DeckError>) -> Vec<DeckError> {
             out.push(e);
         }
     }
+    let mut files: Vec<PathBuf> = Vec::new();
+    for e in &out {
+        if !files.contains(&e.file) {
+            files.push(e.file.clone());
+        }
+    }
+    out.sort_by_key(|e| (files.iter().position(|f| *f == e.file), e.line, e.column));
     out
 }
 
@@ -150,8 +204,16 @@ fn dedup(errors: Vec<DeckError>) -> Vec<DeckError> {
 /// grid materials, labels — all names not defined by a `[[material]]`) with `lookup`, which
 /// returns `Err(message)` for an unknown name. A message of the form `"unknown material; did
 /// you mean `water`?"` is split at the first `"; "` into message and hint.
-pub fn validate_with(deck: &Deck, lookup: &dyn Fn(&str) -> Result<(), String>) -> Result<(), Vec<DeckError>> {
-    let errs = dedup(validate::check_library_names(&deck.located, &deck.uses, lookup));
+pub fn validate_with(
+    deck: &Deck,
+    lookup: &dyn Fn(&str) -> Result<(), String>,
+) -> Result<(), Vec<DeckError>> {
+    let errs = dedup(validate::check_library_names(
+        &deck.located,
+        &deck.uses,
+        &deck.user_materials,
+        lookup,
+    ));
     if errs.is_empty() {
         Ok(())
     } else {
@@ -180,4 +242,34 @@ pub fn expand(deck: &Deck) -> Vec<(Vec<(String, toml::Value)>, ResolvedDeck)> {
     } else {
         deck.points.clone()
     }
+}
+
+/// The built-in materials library as a lookup for [`validate_with`]: library names, aliases
+/// and element symbols (case-insensitive); an unknown name gets the nearest library names.
+pub fn library_lookup(name: &str) -> Result<(), String> {
+    use dosemill_xsdata::material::MaterialError;
+    match dosemill_xsdata::library::lookup(name) {
+        Ok(_) => Ok(()),
+        Err(MaterialError::UnknownMaterial { suggestions, .. }) => {
+            let mut msg = format!("`{name}` is not a material of the library");
+            if let Some((first, rest)) = suggestions.split_first() {
+                msg.push_str(&format!("; did you mean `{first}`?"));
+                if !rest.is_empty() {
+                    msg.push_str(&format!(" (also near: {})", rest.join(", ")));
+                }
+            } else {
+                msg.push_str("; `dosemill materials` lists the library");
+            }
+            Err(msg)
+        }
+        Err(other) => Err(other.to_string()),
+    }
+}
+
+/// [`load`], then [`validate_with`] against the built-in materials library: what `dosemill
+/// check` and `dosemill run` call before starting a photon.
+pub fn load_checked(path: &Path) -> Result<Deck, Vec<DeckError>> {
+    let deck = load(path)?;
+    validate_with(&deck, &library_lookup)?;
+    Ok(deck)
 }

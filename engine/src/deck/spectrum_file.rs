@@ -21,7 +21,11 @@ pub(crate) fn parse(text: &str) -> Result<(Vec<f64>, Vec<f64>), SpectrumFileErro
     let mut e = Vec::new();
     let mut w = Vec::new();
     let mut header_allowed = true;
-    let err = |line: usize, column: usize, message: String| SpectrumFileError { line, column, message };
+    let err = |line: usize, column: usize, message: String| SpectrumFileError {
+        line,
+        column,
+        message,
+    };
     for (ln, raw) in text.lines().enumerate() {
         let line_no = ln + 1;
         let trimmed = raw.trim();
@@ -29,28 +33,54 @@ pub(crate) fn parse(text: &str) -> Result<(Vec<f64>, Vec<f64>), SpectrumFileErro
             continue;
         }
         let fields: Vec<(usize, &str)> = split_fields(raw);
-        let first_is_word = fields.first().map(|(_, f)| f.parse::<f64>().is_err()).unwrap_or(false);
+        let first_is_word = fields
+            .first()
+            .map(|(_, f)| f.parse::<f64>().is_err())
+            .unwrap_or(false);
         if header_allowed && first_is_word {
             header_allowed = false;
             continue;
         }
         header_allowed = false;
         if fields.len() != 2 {
-            return Err(err(line_no, 1, format!("expected 2 columns (energy keV, weight), found {}", fields.len())));
+            return Err(err(
+                line_no,
+                1,
+                format!(
+                    "expected 2 columns (energy keV, weight), found {}",
+                    fields.len()
+                ),
+            ));
         }
         let (c0, f0) = fields[0];
         let (c1, f1) = fields[1];
-        let energy: f64 = f0.parse().map_err(|_| err(line_no, c0, format!("`{f0}` is not a number")))?;
-        let weight: f64 = f1.parse().map_err(|_| err(line_no, c1, format!("`{f1}` is not a number")))?;
+        let energy: f64 = f0
+            .parse()
+            .map_err(|_| err(line_no, c0, format!("`{f0}` is not a number")))?;
+        let weight: f64 = f1
+            .parse()
+            .map_err(|_| err(line_no, c1, format!("`{f1}` is not a number")))?;
         if !(1.0..=800.0).contains(&energy) {
-            return Err(err(line_no, c0, format!("energy {} keV is outside 1–800 keV", fmt_num(energy))));
+            return Err(err(
+                line_no,
+                c0,
+                format!("energy {} keV is outside 1–800 keV", fmt_num(energy)),
+            ));
         }
         if !weight.is_finite() || weight < 0.0 {
             return Err(err(line_no, c1, format!("weight {f1} must be ≥ 0")));
         }
         if let Some(&prev) = e.last() {
             if energy <= prev {
-                return Err(err(line_no, c0, format!("energies must increase: {} keV follows {} keV", fmt_num(energy), fmt_num(prev))));
+                return Err(err(
+                    line_no,
+                    c0,
+                    format!(
+                        "energies must increase: {} keV follows {} keV",
+                        fmt_num(energy),
+                        fmt_num(prev)
+                    ),
+                ));
             }
         }
         e.push(energy);
@@ -60,7 +90,11 @@ pub(crate) fn parse(text: &str) -> Result<(Vec<f64>, Vec<f64>), SpectrumFileErro
         return Err(err(1, 1, "the spectrum file has no data rows".into()));
     }
     if !w.iter().any(|&x| x > 0.0) {
-        return Err(err(1, 1, "every weight is zero: the spectrum is empty".into()));
+        return Err(err(
+            1,
+            1,
+            "every weight is zero: the spectrum is empty".into(),
+        ));
     }
     Ok((e, w))
 }
@@ -113,7 +147,10 @@ mod tests {
         assert_eq!(parse("20,1\n900,1\n").unwrap_err().line, 2);
         assert_eq!(parse("20,1\n10,1\n").unwrap_err().line, 2);
         assert!(parse("20,0\n30,0\n").unwrap_err().message.contains("empty"));
-        assert!(parse("# nothing\n").unwrap_err().message.contains("no data"));
+        assert!(parse("# nothing\n")
+            .unwrap_err()
+            .message
+            .contains("no data"));
         let e = parse("20,x\n").unwrap_err();
         assert_eq!((e.line, e.column), (1, 4));
         assert!(parse("20,1,3\n").is_err());

@@ -26,14 +26,26 @@ pub(crate) fn to_toml_value(n: &Node) -> toml::Value {
         Val::Bool(b) => toml::Value::Boolean(*b),
         Val::Datetime(d) => toml::Value::String(d.clone()),
         Val::Array(a) => toml::Value::Array(a.iter().map(to_toml_value).collect()),
-        Val::Table(t) => toml::Value::Table(t.iter().map(|(k, v)| (k.clone(), to_toml_value(v))).collect()),
+        Val::Table(t) => toml::Value::Table(
+            t.iter()
+                .map(|(k, v)| (k.clone(), to_toml_value(v)))
+                .collect(),
+        ),
     }
 }
 
 /// Read the `[sweep]` table (already removed from the tree) and check every path against `root`.
 pub(crate) fn read_axes(cx: &mut Cx, sweep: &Node, root: &Node) -> Vec<SweepAxis> {
     let Val::Table(entries) = &sweep.val else {
-        cx.err(sweep.key_or_value(), "sweep", format!("expected a table of \"key.path\" = [values], found {}", sweep.val.type_name()), None);
+        cx.err(
+            sweep.key_or_value(),
+            "sweep",
+            format!(
+                "expected a table of \"key.path\" = [values], found {}",
+                sweep.val.type_name()
+            ),
+            None,
+        );
         return Vec::new();
     };
     let mut out = Vec::new();
@@ -42,11 +54,23 @@ pub(crate) fn read_axes(cx: &mut Cx, sweep: &Node, root: &Node) -> Vec<SweepAxis
         let loc: Loc = v.key_or_value();
         // A dotted key written without quotes arrives as nested tables.
         if matches!(v.val, Val::Table(_)) {
-            cx.err(loc, &kp, "swept key paths are written in quotes", Some(format!("write `\"{k}.…\" = [...]` with the whole path quoted")));
+            cx.err(
+                loc,
+                &kp,
+                "swept key paths are written in quotes",
+                Some(format!(
+                    "write `\"{k}.…\" = [...]` with the whole path quoted"
+                )),
+            );
             continue;
         }
         let Val::Array(items) = &v.val else {
-            cx.err(v.loc, &kp, format!("expected an array of values, found {}", v.val.type_name()), Some(format!("write `\"{k}\" = [value1, value2]`")));
+            cx.err(
+                v.loc,
+                &kp,
+                format!("expected an array of values, found {}", v.val.type_name()),
+                Some(format!("write `\"{k}\" = [value1, value2]`")),
+            );
             continue;
         };
         if items.is_empty() {
@@ -54,14 +78,24 @@ pub(crate) fn read_axes(cx: &mut Cx, sweep: &Node, root: &Node) -> Vec<SweepAxis
             continue;
         }
         if k.starts_with("sweep") || k == "include" || k == "run.output" {
-            cx.err(loc, &kp, format!("`{k}` cannot be swept"), Some("each combination's output name is derived from the swept values".into()));
+            cx.err(
+                loc,
+                &kp,
+                format!("`{k}` cannot be swept"),
+                Some("each combination's output name is derived from the swept values".into()),
+            );
             continue;
         }
         if let Err((msg, hint)) = check_path(root, k) {
             cx.err(loc, &kp, msg, hint);
             continue;
         }
-        out.push(SweepAxis { key_path: k.clone(), values: items.iter().map(to_toml_value).collect(), nodes: items.clone(), key_loc: loc });
+        out.push(SweepAxis {
+            key_path: k.clone(),
+            values: items.iter().map(to_toml_value).collect(),
+            nodes: items.clone(),
+            key_loc: loc,
+        });
     }
     out
 }
@@ -84,10 +118,19 @@ fn check_path(root: &Node, path: &str) -> Result<(), (String, Option<String>)> {
         match &cur.val {
             Val::Array(items) => {
                 let Ok(idx) = seg.parse::<usize>() else {
-                    return Err((format!("`{walked}` is a list; expected an index after it, found `{seg}`"), Some(format!("write `{walked}.0.{seg}` for the first entry"))));
+                    return Err((
+                        format!("`{walked}` is a list; expected an index after it, found `{seg}`"),
+                        Some(format!("write `{walked}.0.{seg}` for the first entry")),
+                    ));
                 };
                 let Some(n) = items.get(idx) else {
-                    return Err((format!("`{walked}` has {} entries; index {idx} does not exist", items.len()), None));
+                    return Err((
+                        format!(
+                            "`{walked}` has {} entries; index {idx} does not exist",
+                            items.len()
+                        ),
+                        None,
+                    ));
                 };
                 cur = n;
             }
@@ -97,12 +140,26 @@ fn check_path(root: &Node, path: &str) -> Result<(), (String, Option<String>)> {
                 None => {
                     let keys = table_keys(cur);
                     let hint = nearest(seg, &keys).map(|s| format!("did you mean `{s}`?"));
-                    return Err((format!("the deck has no `{}`", if walked.is_empty() { seg.to_string() } else { format!("{walked}.{seg}") }), hint));
+                    return Err((
+                        format!(
+                            "the deck has no `{}`",
+                            if walked.is_empty() {
+                                seg.to_string()
+                            } else {
+                                format!("{walked}.{seg}")
+                            }
+                        ),
+                        hint,
+                    ));
                 }
             },
             _ => return Err((format!("`{walked}` is a value, not a table"), None)),
         }
-        walked = if walked.is_empty() { seg.to_string() } else { format!("{walked}.{seg}") };
+        walked = if walked.is_empty() {
+            seg.to_string()
+        } else {
+            format!("{walked}.{seg}")
+        };
     }
     Ok(())
 }
@@ -118,7 +175,10 @@ pub(crate) fn set_path(root: &mut Node, path: &str, value: Node, key_loc: Loc) {
         // Errors about the key point at the sweep's key, about the value at the value.
         let next = match &mut cur.val {
             Val::Array(items) => {
-                let Some(slot) = seg.parse::<usize>().ok().and_then(|idx| items.get_mut(idx)) else { return };
+                let Some(slot) = seg.parse::<usize>().ok().and_then(|idx| items.get_mut(idx))
+                else {
+                    return;
+                };
                 slot
             }
             Val::Table(entries) => match entries.iter().position(|(k, _)| k == seg) {
@@ -163,10 +223,19 @@ pub(crate) fn combinations(axes: &[SweepAxis]) -> Vec<Vec<usize>> {
 /// Label of an axis in file names: the last path segment, or the whole path when two axes
 /// share their last segment.
 pub(crate) fn labels(axes: &[SweepAxis]) -> Vec<String> {
-    let lasts: Vec<&str> = axes.iter().map(|a| a.key_path.rsplit('.').next().unwrap_or(&a.key_path)).collect();
+    let lasts: Vec<&str> = axes
+        .iter()
+        .map(|a| a.key_path.rsplit('.').next().unwrap_or(&a.key_path))
+        .collect();
     axes.iter()
         .zip(&lasts)
-        .map(|(a, l)| if lasts.iter().filter(|x| *x == l).count() > 1 { a.key_path.clone() } else { l.to_string() })
+        .map(|(a, l)| {
+            if lasts.iter().filter(|x| *x == l).count() > 1 {
+                a.key_path.clone()
+            } else {
+                l.to_string()
+            }
+        })
         .collect()
 }
 
@@ -181,5 +250,13 @@ pub(crate) fn value_label(v: &toml::Value) -> String {
         other => other.to_string(),
     };
     let s = s.strip_prefix('-').map(|r| format!("m{r}")).unwrap_or(s);
-    s.chars().map(|c| if c.is_ascii_alphanumeric() || c == '.' || c == '_' { c } else { '_' }).collect()
+    s.chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '.' || c == '_' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect()
 }

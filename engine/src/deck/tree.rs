@@ -99,10 +99,23 @@ impl Files {
         self.files.len() - 1
     }
 
-    pub fn error(&self, loc: Loc, key_path: &str, message: String, hint: Option<String>) -> DeckError {
+    pub fn error(
+        &self,
+        loc: Loc,
+        key_path: &str,
+        message: String,
+        hint: Option<String>,
+    ) -> DeckError {
         let f = &self.files[loc.file];
         let (line, column) = line_column(&f.text, loc.start);
-        DeckError { file: f.path.clone(), line, column, key_path: key_path.to_string(), message, hint }
+        DeckError {
+            file: f.path.clone(),
+            line,
+            column,
+            key_path: key_path.to_string(),
+            message,
+            hint,
+        }
     }
 
     pub fn describe(&self, loc: Loc) -> String {
@@ -114,7 +127,11 @@ impl Files {
 
 fn loc_of(file: usize, span: Option<std::ops::Range<usize>>, fallback: Loc) -> Loc {
     match span {
-        Some(r) => Loc { file, start: r.start, end: r.end },
+        Some(r) => Loc {
+            file,
+            start: r.start,
+            end: r.end,
+        },
         None => fallback,
     }
 }
@@ -127,12 +144,18 @@ fn from_value(file: usize, v: &toml_edit::Value, fallback: Loc) -> Node {
         toml_edit::Value::Float(f) => Val::Float(*f.value()),
         toml_edit::Value::Boolean(b) => Val::Bool(*b.value()),
         toml_edit::Value::Datetime(d) => Val::Datetime(d.value().to_string()),
-        toml_edit::Value::Array(a) => Val::Array(a.iter().map(|x| from_value(file, x, loc)).collect()),
+        toml_edit::Value::Array(a) => {
+            Val::Array(a.iter().map(|x| from_value(file, x, loc)).collect())
+        }
         toml_edit::Value::InlineTable(t) => {
             let mut entries = Vec::new();
             for (k, item) in t.iter() {
                 let key = t.key(k);
-                let key_loc = key.and_then(|k| k.span()).map(|r| Loc { file, start: r.start, end: r.end });
+                let key_loc = key.and_then(|k| k.span()).map(|r| Loc {
+                    file,
+                    start: r.start,
+                    end: r.end,
+                });
                 let mut n = from_value(file, item, key_loc.unwrap_or(loc));
                 n.key_loc = key_loc.or(Some(n.loc));
                 entries.push((k.to_string(), n));
@@ -140,19 +163,31 @@ fn from_value(file: usize, v: &toml_edit::Value, fallback: Loc) -> Node {
             Val::Table(entries)
         }
     };
-    Node { loc, key_loc: None, val }
+    Node {
+        loc,
+        key_loc: None,
+        val,
+    }
 }
 
 fn from_table(file: usize, t: &toml_edit::Table, fallback: Loc) -> Node {
     let loc = loc_of(file, t.span(), fallback);
     let mut entries = Vec::new();
     for (k, item) in t.iter() {
-        let key_loc = t.key(k).and_then(|k| k.span()).map(|r| Loc { file, start: r.start, end: r.end });
+        let key_loc = t.key(k).and_then(|k| k.span()).map(|r| Loc {
+            file,
+            start: r.start,
+            end: r.end,
+        });
         let mut n = from_item(file, item, key_loc.unwrap_or(loc));
         n.key_loc = key_loc.or(Some(n.loc));
         entries.push((k.to_string(), n));
     }
-    Node { loc, key_loc: None, val: Val::Table(entries) }
+    Node {
+        loc,
+        key_loc: None,
+        val: Val::Table(entries),
+    }
 }
 
 fn from_item(file: usize, item: &toml_edit::Item, fallback: Loc) -> Node {
@@ -162,9 +197,17 @@ fn from_item(file: usize, item: &toml_edit::Item, fallback: Loc) -> Node {
         toml_edit::Item::ArrayOfTables(a) => {
             let loc = loc_of(file, a.span(), fallback);
             let elems = a.iter().map(|t| from_table(file, t, loc)).collect();
-            Node { loc, key_loc: None, val: Val::Array(elems) }
+            Node {
+                loc,
+                key_loc: None,
+                val: Val::Array(elems),
+            }
         }
-        toml_edit::Item::None => Node { loc: fallback, key_loc: None, val: Val::Table(Vec::new()) },
+        toml_edit::Item::None => Node {
+            loc: fallback,
+            key_loc: None,
+            val: Val::Table(Vec::new()),
+        },
     }
 }
 
@@ -172,12 +215,24 @@ fn from_item(file: usize, item: &toml_edit::Item, fallback: Loc) -> Node {
 pub(crate) fn parse_text(files: &Files, file: usize) -> Result<Node, DeckError> {
     let text = &files.files[file].text;
     match toml_edit::ImDocument::parse(text.as_str()) {
-        Ok(doc) => Ok(from_table(file, doc.as_table(), Loc { file, start: 0, end: 0 })),
+        Ok(doc) => Ok(from_table(
+            file,
+            doc.as_table(),
+            Loc {
+                file,
+                start: 0,
+                end: 0,
+            },
+        )),
         Err(e) => {
             let start = e.span().map(|r| r.start).unwrap_or(0);
             let msg = e.message().trim().replace('\n', "; ");
             Err(files.error(
-                Loc { file, start, end: start },
+                Loc {
+                    file,
+                    start,
+                    end: start,
+                },
                 "",
                 format!("broken TOML: {msg}"),
                 Some("check the quoting, brackets and `key = value` form on this line".into()),
@@ -208,13 +263,24 @@ pub(crate) fn load_tree(
         let names: Vec<String> = chain[pos..]
             .iter()
             .chain(std::iter::once(&canon))
-            .map(|p| p.file_name().map(|f| f.to_string_lossy().into_owned()).unwrap_or_default())
+            .map(|p| {
+                p.file_name()
+                    .map(|f| f.to_string_lossy().into_owned())
+                    .unwrap_or_default()
+            })
             .collect();
         let msg = format!("include loop: {}", names.join(" → "));
         let hint = Some("remove one of the `include` entries in this chain".to_string());
         errors.push(match include_loc {
             Some(l) => files.error(l, "include", msg, hint),
-            None => DeckError { file: path.into(), line: 0, column: 0, key_path: "include".into(), message: msg, hint },
+            None => DeckError {
+                file: path.into(),
+                line: 0,
+                column: 0,
+                key_path: "include".into(),
+                message: msg,
+                hint,
+            },
         });
         return None;
     }
@@ -223,8 +289,23 @@ pub(crate) fn load_tree(
         Err(e) => {
             let msg = format!("cannot read deck `{}`: {e}", path.display());
             errors.push(match include_loc {
-                Some(l) => files.error(l, "include", msg, Some("check the path; relative paths are taken from the including deck's folder".into())),
-                None => DeckError { file: path.into(), line: 0, column: 0, key_path: String::new(), message: msg, hint: None },
+                Some(l) => files.error(
+                    l,
+                    "include",
+                    msg,
+                    Some(
+                        "check the path; relative paths are taken from the including deck's folder"
+                            .into(),
+                    ),
+                ),
+                None => DeckError {
+                    file: path.into(),
+                    line: 0,
+                    column: 0,
+                    key_path: String::new(),
+                    message: msg,
+                    hint: None,
+                },
             });
             return None;
         }
@@ -236,10 +317,22 @@ pub(crate) fn load_tree(
 }
 
 /// Parse deck text that stands for the file `path` (not read) and merge its includes.
-pub(crate) fn load_tree_from_text(path: &Path, text: &str, files: &mut Files, errors: &mut Vec<DeckError>) -> Option<Node> {
+pub(crate) fn load_tree_from_text(
+    path: &Path,
+    text: &str,
+    files: &mut Files,
+    errors: &mut Vec<DeckError>,
+) -> Option<Node> {
     let canon = std::fs::canonicalize(path).unwrap_or_else(|_| path.to_path_buf());
     let mut chain = vec![canon];
-    tree_from_text(path, FileRole::Deck, text.to_string(), files, &mut chain, errors)
+    tree_from_text(
+        path,
+        FileRole::Deck,
+        text.to_string(),
+        files,
+        &mut chain,
+        errors,
+    )
 }
 
 fn tree_from_text(
@@ -274,7 +367,10 @@ fn tree_from_text(
                             other => errors.push(files.error(
                                 it.loc,
                                 "include",
-                                format!("expected a file name (string), found {}", other.type_name()),
+                                format!(
+                                    "expected a file name (string), found {}",
+                                    other.type_name()
+                                ),
                                 None,
                             )),
                         }
@@ -287,7 +383,10 @@ fn tree_from_text(
                 other => errors.push(files.error(
                     inc.key_or_value(),
                     "include",
-                    format!("expected an array of file names, found {}", other.type_name()),
+                    format!(
+                        "expected an array of file names, found {}",
+                        other.type_name()
+                    ),
                     Some("write `include = [\"common.toml\"]`".into()),
                 )),
             }
@@ -327,14 +426,28 @@ enum MergeMode {
     Override,
 }
 
-fn merge(base: &mut Node, top: Node, mode: MergeMode, path: &str, files: &Files, errors: &mut Vec<DeckError>) {
-    let (Val::Table(be), Val::Table(te)) = (&mut base.val, top.val) else { unreachable!() };
+fn merge(
+    base: &mut Node,
+    top: Node,
+    mode: MergeMode,
+    path: &str,
+    files: &Files,
+    errors: &mut Vec<DeckError>,
+) {
+    let (Val::Table(be), Val::Table(te)) = (&mut base.val, top.val) else {
+        unreachable!()
+    };
     for (k, tn) in te {
-        let kp = if path.is_empty() { k.clone() } else { format!("{path}.{k}") };
+        let kp = if path.is_empty() {
+            k.clone()
+        } else {
+            format!("{path}.{k}")
+        };
         match be.iter_mut().find(|(bk, _)| *bk == k) {
             None => be.push((k, tn)),
             Some((_, bn)) => {
-                let both_tables = matches!(bn.val, Val::Table(_)) && matches!(tn.val, Val::Table(_));
+                let both_tables =
+                    matches!(bn.val, Val::Table(_)) && matches!(tn.val, Val::Table(_));
                 if both_tables {
                     merge(bn, tn, mode, &kp, files, errors);
                 } else if path.is_empty() && ACCUMULATED.contains(&k.as_str()) {
@@ -342,7 +455,11 @@ fn merge(base: &mut Node, top: Node, mode: MergeMode, path: &str, files: &Files,
                         (Val::Array(ba), Val::Array(ta)) => ba.extend(ta),
                         (_, v) => {
                             // Not arrays: let validation report the type; keep the top value.
-                            *bn = Node { loc: tn.loc, key_loc: tn.key_loc, val: v };
+                            *bn = Node {
+                                loc: tn.loc,
+                                key_loc: tn.key_loc,
+                                val: v,
+                            };
                         }
                     }
                 } else if mode == MergeMode::Override {

@@ -33,8 +33,8 @@
 //!
 //! ## Groups
 //!
-//! Each scorer writes one top-level group named after the scorer's name in the deck. Groups may
-//! nest. Every group that holds results has a string attribute `kind` that says how to read and
+//! Each scorer writes one top-level group named after the scorer's name in the deck (datasets
+//! never sit directly under the root). Groups may nest. Every group that holds results has a string attribute `kind` that says how to read and
 //! plot it:
 //!
 //! | `kind`       | primary datasets | axes |
@@ -59,6 +59,8 @@
 //! * Dataset, group and attribute names: non-empty, no `/`, not `.`; `units` is reserved on
 //!   datasets (it is the [`Dataset::units`] field).
 //!
+//! [`RUN_ATTRIBUTES`], [`kind`] and [`SIGMA_SUFFIX`] spell these names for code.
+//!
 //! ## Encoding
 //!
 //! * Numbers are little-endian IEEE/two's-complement of the width in [`DataBuf`].
@@ -68,8 +70,16 @@
 //! * [`AttrValue::Bool`] is stored as an unsigned 8-bit integer 0 or 1 (the HDF5 crate has no
 //!   boolean attribute type); h5py reads it as `numpy.uint8`. Reading maps a u8 attribute of 0
 //!   or 1 back to `Bool`.
+//! * The same tree always gives the same bytes (no timestamps in the file), so two runs with
+//!   the same deck and seed can be compared with `cmp` as well as dataset by dataset.
 //! * [`read`] returns attributes, groups and datasets sorted by name (HDF5 keeps no order that
 //!   survives every writer); compare trees with [`ResultFile::canonical`] applied to both.
+//!
+//! # Testing failures
+//!
+//! Setting the environment variable [`FAULT_ENV_VAR`] to a byte count makes every write through
+//! this module fail like a full disk after that many bytes, so tests of the binary can prove that
+//! earlier files stay intact.
 
 mod h5;
 mod model;
@@ -80,6 +90,37 @@ pub use h5::{
 pub use model::{AttrValue, DataBuf, Dataset, Group, ResultFile, TreeError};
 
 use std::path::PathBuf;
+
+/// Root attributes every run writes (see the table above), in the order reports list them.
+pub const RUN_ATTRIBUTES: [&str; 12] = [
+    "dosemill_version",
+    "git_commit",
+    "data_source",
+    "data_tables_sha256",
+    "seed",
+    "histories",
+    "threads",
+    "wall_time_s",
+    "start_time",
+    "completion",
+    "deck_text",
+    "resolved_deck",
+];
+
+/// Values of the group attribute `kind` that reports know how to plot.
+pub mod kind {
+    /// 1-D values per depth bin, `axis0` = depth edges (cm).
+    pub const DEPTH_DOSE: &str = "depth_dose";
+    /// 1-D series over shared energy bin edges, `axis0` = energy edges (keV).
+    pub const SPECTRUM: &str = "spectrum";
+    /// 2-D `[row, column]` detector image, `axis0`/`axis1` = row/column edges (cm).
+    pub const IMAGE: &str = "image";
+    /// 3-D voxel values, `axis0..2` = voxel edges (cm).
+    pub const DOSE_GRID: &str = "dose_grid";
+}
+
+/// Suffix of the dataset holding the 1σ absolute uncertainty of the dataset it is appended to.
+pub const SIGMA_SUFFIX: &str = "_sigma";
 
 /// Error from writing or reading a result file; every variant names the file.
 #[derive(Debug, thiserror::Error)]

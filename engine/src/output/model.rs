@@ -331,6 +331,25 @@ impl Group {
         self.datasets.push(dataset);
     }
 
+    /// Append a scored quantity and its 1σ absolute uncertainty: datasets `name` and
+    /// `name_sigma` of the same `shape` and `units` (lengths are checked when written).
+    pub fn add_with_sigma(
+        &mut self,
+        name: &str,
+        shape: &[usize],
+        values: Vec<f64>,
+        sigma: Vec<f64>,
+        units: &str,
+    ) {
+        self.add_dataset(Dataset::f64_nd(name, shape, values, units));
+        self.add_dataset(Dataset::f64_nd(
+            &format!("{name}{}", super::SIGMA_SUFFIX),
+            shape,
+            sigma,
+            units,
+        ));
+    }
+
     /// Append a sub-group.
     pub fn add_group(&mut self, group: Group) {
         self.groups.push(group);

@@ -1,9 +1,9 @@
 //! Human-readable summaries and PNG plots of result files.
 //!
-//! [`summarize`] turns a [`ResultFile`] into a text report: the run's root attributes, then each
-//! group with its `kind`, and for each dataset its shape, units, total, peak (with position and,
-//! where axes are attached, the bin-centre coordinates) and, where an `X_sigma` dataset sits
-//! beside `X`, the relative 1σ uncertainty. [`plot_all`] draws one PNG per plottable dataset
+//! [`summarize`] turns a [`ResultFile`](crate::output::ResultFile) into a text report: the run's
+//! root attributes, then each group with its `kind`, and for each dataset its shape, units, total,
+//! peak (with position and, where axes are attached, the bin-centre coordinates) and, where an
+//! `X_sigma` dataset sits beside `X`, the relative 1σ uncertainty. [`plot_all`] draws one PNG per plottable dataset
 //! (one per group for spectra), chosen by the group's `kind` (see [`crate::output`] for the
 //! layout conventions):
 //!

@@ -9,7 +9,7 @@ use plotters::style::FontStyle;
 
 use super::summary::{axis_label, is_axis_attr, sigma_base, sigma_of};
 use super::ReportError;
-use crate::output::{self, DataBuf, Dataset, Group, ResultFile};
+use crate::output::{self, kind, DataBuf, Dataset, Group, ResultFile};
 
 /// Family name the embedded font is registered under.
 const FONT: &str = "sans-serif";
@@ -117,7 +117,7 @@ fn plot_group(
     let gpath = format!("{parent}/{}", g.name);
     let stem = gpath.trim_start_matches('/').replace('/', "_");
     match g.kind() {
-        Some("depth_dose") => {
+        Some(kind::DEPTH_DOSE) => {
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 1) {
                 match edges_of(g, d, 0) {
                     Ok((edges, e)) => {
@@ -136,7 +136,7 @@ fn plot_group(
                 }
             }
         }
-        Some("spectrum") => {
+        Some(kind::SPECTRUM) => {
             let mut series = Vec::new();
             let mut common: Option<(&Dataset, Vec<f64>)> = None;
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 1) {
@@ -166,7 +166,7 @@ fn plot_group(
                 )),
             }
         }
-        Some("image") => {
+        Some(kind::IMAGE) => {
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 2) {
                 let axes = edges_of(g, d, 0).and_then(|y| edges_of(g, d, 1).map(|x| (y, x)));
                 match axes {
@@ -192,7 +192,7 @@ fn plot_group(
                 }
             }
         }
-        Some("dose_grid") => {
+        Some(kind::DOSE_GRID) => {
             for d in primaries(g).into_iter().filter(|d| d.shape.len() == 3) {
                 let axes = edges_of(g, d, 0)
                     .and_then(|a| edges_of(g, d, 1).map(|b| (a, b)))
@@ -560,6 +560,24 @@ fn draw_map_panel(
     (r0, r1): (f64, f64),
     (lo, hi): (f64, f64),
 ) -> DrawResult<()> {
+    // Square pixels: shrink the panel along one direction so that 1 cm is the same length on
+    // both axes (the plot region is estimated from the caption, margins and label areas). A
+    // very elongated map keeps at least a quarter of the room, to stay legible.
+    let (pw, ph) = area.dim_in_pixel();
+    let avail_w = f64::from(pw) - 80.0 - 30.0;
+    let avail_h = f64::from(ph) - 50.0 - 30.0 - 35.0;
+    let want = (x1 - x0) / (r1 - r0);
+    let (mut pad_x, mut pad_y) = (0i32, 0i32);
+    if want.is_finite() && want > 0.0 && avail_w > 0.0 && avail_h > 0.0 {
+        if want > avail_w / avail_h {
+            let new_h = (avail_w / want).max(0.25 * avail_h);
+            pad_y = ((avail_h - new_h) / 2.0) as i32;
+        } else {
+            let new_w = (avail_h * want).max(0.25 * avail_w);
+            pad_x = ((avail_w - new_w) / 2.0) as i32;
+        }
+    }
+    let area = area.margin(pad_y, pad_y, pad_x, pad_x);
     let builder = |area| {
         let mut b = ChartBuilder::on(area);
         b.caption(&m.title, (FONT, 22))
@@ -587,7 +605,7 @@ fn draw_map_panel(
         });
     // Rows top-down: the row axis runs downwards, so row 0 is drawn at the top.
     let y_range = if m.rows_top_down { r1..r0 } else { r0..r1 };
-    let mut chart = builder(area).build_cartesian_2d(x0..x1, y_range)?;
+    let mut chart = builder(&area).build_cartesian_2d(x0..x1, y_range)?;
     chart
         .configure_mesh()
         .disable_mesh()

@@ -2,24 +2,13 @@
 
 use std::fmt::Write as _;
 
-use crate::output::{AttrValue, DataBuf, Dataset, Group, ResultFile};
+use crate::output::{AttrValue, DataBuf, Dataset, Group, ResultFile, RUN_ATTRIBUTES, SIGMA_SUFFIX};
 
-/// Root attributes every run writes, in the order the summary lists them.
-const RUN_ATTRS: [&str; 10] = [
-    "dosemill_version",
-    "git_commit",
-    "data_source",
-    "data_tables_sha256",
-    "seed",
-    "histories",
-    "threads",
-    "wall_time_s",
-    "start_time",
-    "completion",
-];
+/// Root attributes every run writes, except the deck texts.
+const RUN_ATTRS: &[&str] = RUN_ATTRIBUTES.split_at(10).0;
 
 /// Root attributes holding deck texts (summarised by size, not printed).
-const TEXT_ATTRS: [&str; 2] = ["deck_text", "resolved_deck"];
+const TEXT_ATTRS: &[&str] = RUN_ATTRIBUTES.split_at(10).1;
 
 /// Total, peak and uncertainty figures of one numeric dataset.
 #[derive(Debug, Clone, PartialEq)]
@@ -91,7 +80,7 @@ pub fn summarize(file: &ResultFile, source: &str) -> String {
     let mut out = String::new();
     let _ = writeln!(out, "result file: {source}");
     let mut missing = Vec::new();
-    for key in RUN_ATTRS {
+    for &key in RUN_ATTRS {
         match file.attr(key) {
             Some(v) => {
                 let note = match (key, v.as_str()) {
@@ -105,7 +94,7 @@ pub fn summarize(file: &ResultFile, source: &str) -> String {
             None => missing.push(key),
         }
     }
-    for key in TEXT_ATTRS {
+    for &key in TEXT_ATTRS {
         match file.attr(key) {
             Some(v) => {
                 let _ = writeln!(out, "  {key}: {}", attr_text(v));
@@ -208,7 +197,7 @@ pub(crate) fn sigma_base<'a>(g: &'a Group, d: &Dataset) -> Option<&'a Dataset> {
 
 /// The `X_sigma` values of `d` when present with the same shape.
 pub(crate) fn sigma_of(g: &Group, d: &Dataset) -> Option<Vec<f64>> {
-    let s = g.dataset(&format!("{}_sigma", d.name))?;
+    let s = g.dataset(&format!("{}{SIGMA_SUFFIX}", d.name))?;
     if s.shape != d.shape {
         return None;
     }

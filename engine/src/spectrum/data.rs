@@ -24,6 +24,8 @@ pub(crate) struct ShellLine {
 pub(crate) struct ShellInfo {
     /// "K", "L1", "L2", "L3".
     pub name: &'static str,
+    /// Position in K, L1, L2, L3 (the index into photoabsorption shell shares).
+    pub index: usize,
     /// Electrons in the filled shell.
     pub electrons: f64,
     /// Binding (edge) energy (keV); 0 if absent.
@@ -57,10 +59,12 @@ pub(crate) fn anode_shells(anode: Anode) -> Result<Vec<ShellInfo>, SpectrumError
     Ok(el
         .shells()
         .iter()
-        .map(|s| {
+        .enumerate()
+        .map(|(index, s)| {
             let name = shell_name(s.shell);
             ShellInfo {
                 name,
+                index,
                 electrons: if s.shell == Shell::L3 { 4.0 } else { 2.0 },
                 edge_kev: s.edge_kev,
                 fluorescence_yield: s.fluorescence_yield,

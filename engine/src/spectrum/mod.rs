@@ -12,24 +12,29 @@
 //! * **Electron slowing.** T(s)² = T0² − C·s, s the path length (g/cm²). C is set so that the
 //!   Thomson–Whiddington range T0²/C equals the continuous-slowing-down range from the Bethe
 //!   collision stopping power (ICRU Report 37, mean excitation energies W 727 eV, Mo 424 eV,
-//!   Rh 449 eV, from memory). Electrons are followed straight in, without diffusion or
-//!   backscatter (see limits).
+//!   Rh 449 eV, from memory).
 //! * **Bremsstrahlung.** Kramers' thin-target form: the energy radiated per keV of photon
 //!   energy per unit energy lost is the same for every photon energy below the electron's
 //!   energy. With Thomson–Whiddington slowing this gives, per incident electron into 4π,
-//!   N(E) dE = (2 k Z / E) ∫_E^{T0} exp(−μ_anode(E) · s(T) · cot θ) dT dE,
-//!   s(T) = (T0² − T²)/C, θ the anode angle. Without self-absorption this is exactly Kramers'
-//!   thick-target law: energy fluence ∝ Z (T0 − E), a straight line ending at the
-//!   Duane–Hunt limit E_max = e·kVp.
-//! * **Self-absorption.** Electrons arrive perpendicular to the central ray, i.e. at θ to the
-//!   target normal; a photon made after a path s leaves at depth s·cos θ along the central ray
-//!   (at θ to the face), so it crosses s·cot θ of anode. μ of the anode comes from the
+//!   N(E) dE = (2 k Z / E) ∫_E^{T0} P(E, s(T)) dT dE, s(T) = (T0² − T²)/C, where P is the
+//!   probability that the electron is still in the anode times the photon's transmission out
+//!   of it. For an ideal target (P = 1) this is exactly Kramers' thick-target law: energy
+//!   fluence ∝ Z (T0 − E), a straight line ending at the Duane–Hunt limit E_max = e·kVp.
+//! * **Depth of emission and self-absorption** (`depth.rs`). Archard's diffusion model
+//!   (D. B. Archard, J. Appl. Phys. 32 (1961) 1505): straight in along the beam to the depth of
+//!   complete diffusion x_d = 40R/(7Z), then on in a random direction; electrons reaching the
+//!   surface are backscattered and emit no more. Electrons arrive perpendicular to the central
+//!   ray, i.e. at the anode angle θ to the target normal; a photon made at depth z crosses
+//!   z / sin θ of anode on its way out along the central ray. μ of the anode comes from the
 //!   project's element tables.
 //! * **Characteristic lines.** K lines for every anode, L lines for tungsten only, produced
 //!   only when the electron energy exceeds the edge. Vacancies come from the Worthington &
-//!   Tomlin (1956) empirical ionisation cross section integrated along the same path, with
-//!   L1→L2/L3 Coster–Kronig transfer; each line is attenuated from its depth of production.
-//!   Fluorescence yields, line energies and line shares come from the project's element tables.
+//!   Tomlin (1956) empirical ionisation cross section integrated along the same path (with the
+//!   same backscatter loss; direct excitation), plus photo-excitation by the anode's own
+//!   continuum above the edge (indirect excitation; continuum treated as a surface source),
+//!   with L1→L2/L3 Coster–Kronig transfer; each line is attenuated from its depth of
+//!   production. Fluorescence yields, line energies and line shares come from the
+//!   project's element tables.
 //! * **Ripple.** V(φ) = kVp·(1 − r + r·|cos φ|) over a period, r = ripple/100, constant tube
 //!   current; the spectrum is the average of constant-potential spectra over 64 instants.
 //! * **Filtration.** Inherent (beryllium window plus aluminium equivalent), the added filters
@@ -37,26 +42,27 @@
 //!
 //! # Absolute output and its uncertainty
 //!
-//! The bremsstrahlung yield is normalised by Kramers' constant: the energy radiated into 4π
-//! per incident electron before self-absorption is k·Z·T0² with k = 1.1e-9 per volt
-//! ([`model::KRAMERS_K_PER_KEV`]), the efficiency commonly quoted for thick targets (common
-//! practice: "about 1 % of the electron energy becomes x-rays in a diagnostic tube"; quoted
-//! constants span about 0.9–1.4e-9 per volt). Emission is taken as isotropic;
-//! 1 mAs = 6.2415e15 electrons. The output is photons per mm² per mAs at the chosen distance.
-//! We deliberately do not scale the output to a measured tube output, so that the
-//! common-practice output check (air kerma per mAs at 80 kV) tests the model rather than
-//! its calibration. Expect the absolute output to be uncertain by about ±30–40 % (Kramers'
-//! constant ±30 %, neglected anode heel and electron diffusion); shapes and HVLs are much
-//! better determined than the absolute output. Characteristic intensities are uncertain by
-//! roughly ±50 % (non-relativistic cross section, no photo-excitation by the continuum, no
-//! electron backscatter loss).
+//! The bremsstrahlung yield is fixed by Kramers' constant: an electron that slows fully in the
+//! target radiates k·Z·T0² (keV) into 4π, k = 1.1e-9 per volt ([`model::KRAMERS_K_PER_KEV`]).
+//! This is the efficiency commonly quoted for x-ray targets (common practice; quoted constants
+//! span about 0.9–1.4e-9 per volt) and agrees with the radiative yield of a fully stopped
+//! electron from the non-relativistic radiative stopping power. Electron backscatter then
+//! lowers the yield per incident electron; emission is taken as isotropic; 1 mAs =
+//! 6.2415e15 electrons. The output is photons per mm² per mAs at the chosen distance. We
+//! deliberately do not scale the output to a measured tube output, so that the
+//! common-practice output check (air kerma per mAs at 80 kV) tests the model rather than its
+//! calibration. Expect the absolute output to be uncertain by about ±30–40 % (Kramers'
+//! constant ±30 %, Archard's simple diffusion picture, no heel effect, real anodes roughen
+//! and lose output with use); spectral shapes and HVLs are much better determined.
+//! Characteristic intensities are uncertain by roughly ±50 % (non-relativistic ionisation cross
+//! section, simplified indirect excitation).
 //!
 //! # Limits
 //!
-//! Research use only. Straight electron paths (no diffusion) overstate the depth of emission
-//! and hence self-absorption at low photon energies; no electron backscatter; isotropic
-//! emission (no heel effect along the anode–cathode axis); no off-axis variation; no
-//! fluorescence excited in the anode by its own continuum; M lines are ignored.
+//! Research use only. Archard's diffusion picture of electron transport (no Monte Carlo
+//! electron transport); isotropic emission (no heel effect along the anode–cathode axis, no
+//! off-axis variation); M lines are ignored; K-shell vacancies do not feed L vacancies; radiative energy loss of the electrons is left out of their slowing (about
+//! 1 % of the loss below 300 keV).
 //!
 //! # Sampling convention
 //!
@@ -66,6 +72,7 @@
 //! inside the bin; lines have lo = hi, so they come out at the exact line energy.
 
 mod data;
+mod depth;
 mod electron;
 pub mod export;
 pub mod model;
@@ -75,7 +82,7 @@ pub mod quality;
 mod tube;
 
 pub use model::{compute_spectrum, SpectrumOptions};
-pub use quality::{air_kerma_ugy_per_mas, hvls_mm, solve_added_filtration, BeamQuality};
+pub use quality::{air_kerma_ugy_per_mas, hvls_mm, solve_added_filtration, solve_added_filtration_for, BeamQuality};
 pub use tube::{Anode, Filter, InherentFiltration, Tube, KVP_MAX, KVP_MIN};
 
 use serde::Serialize;
@@ -124,7 +131,7 @@ pub enum SpectrumError {
     #[error("interaction data: {0}")]
     Data(String),
     /// The filtration solver could not reach the target.
-    #[error("no thickness of `{material}` up to {max_mm} mm gives a first HVL of {target_mm_al} mm Al (unfiltered HVL {start_mm_al:.3} mm Al)")]
+    #[error("no added thickness of `{material}` up to {max_mm} mm gives a first HVL of {target_mm_al} mm (without it the HVL is already {start_mm_al:.3} mm; a lower target needs less filtration on the tube)")]
     TargetUnreachable {
         /// Filter material.
         material: String,

@@ -6,6 +6,7 @@ use dosemill_xsdata::Material;
 
 use super::data::{self, ShellInfo};
 use super::electron::{ionisation_cm2, StoppingMedium};
+use super::depth::EmissionDepth;
 use super::quadrature::GaussLegendre;
 use super::tube::{Anode, Tube};
 use super::{Spectrum, SpectralLine, SpectrumError};
@@ -20,8 +21,8 @@ pub const ELECTRONS_PER_MAS: f64 = 1e-3 / 1.602_176_634e-19;
 const RIPPLE_SAMPLES: usize = 64;
 /// Gauss–Legendre points per energy sub-interval of a bin.
 const ENERGY_POINTS: usize = 4;
-/// Gauss–Legendre points of the depth (electron-energy) integral.
-const DEPTH_POINTS: usize = 48;
+/// Gauss–Legendre points per panel of the depth (electron-energy) integral.
+const DEPTH_POINTS: usize = 8;
 /// Beryllium and aluminium names as the materials library knows them.
 const BERYLLIUM: &str = "Be";
 const ALUMINIUM: &str = "Al";
@@ -126,35 +127,17 @@ pub fn bin_edges_kev(kvp: f64, bin_kev: f64) -> Vec<f64> {
     edges
 }
 
-/// ∫_{t_lo}^{t0} g(T) · exp(−a (t0² − T²)) dT, accurate for any a ≥ 0.
-///
-/// For a·(t0² − t_lo²) ≤ 20 the integrand is a mild exponential and Gauss–Legendre in T is
-/// used; above, the substitution w = exp(−a (t0² − T²)) (dT = dw / (2 a w T)) turns the steep
-/// exponential into a flat integrand g(T)/(2 a T) in w.
-pub(crate) fn depth_integral(gl: &GaussLegendre, t_lo: f64, t0: f64, a: f64, g: impl Fn(f64) -> f64) -> f64 {
-    if t_lo >= t0 {
-        return 0.0;
-    }
-    let s_max = t0 * t0 - t_lo * t_lo;
-    let x = a * s_max;
-    if x <= 20.0 {
-        gl.integrate(t_lo, t0, |t| g(t) * (-a * (t0 * t0 - t * t)).exp())
-    } else {
-        let w_min = (-x).exp();
-        gl.integrate(w_min, 1.0, |w| {
-            let s = -w.ln() / a;
-            let t = (t0 * t0 - s).max(t_lo * t_lo).sqrt();
-            g(t) / (2.0 * a * t)
-        })
-    }
-}
-
 /// The shells followed for characteristic emission: K always, L1–L3 for tungsten only.
 fn emitting_shells(anode: Anode, shells: Vec<ShellInfo>) -> Vec<ShellInfo> {
     shells
         .into_iter()
         .filter(|s| s.name == "K" || anode == Anode::W)
         .filter(|s| s.edge_kev > 0.0 && s.fluorescence_yield > 0.0)
+        .map(|mut s| {
+            // Lines below the tables' lowest energy never leave a tube and cannot be attenuated.
+            s.lines.retain(|l| l.kev >= dosemill_xsdata::E_MIN_KEV);
+            s
+        })
         .collect()
 }
 
@@ -169,10 +152,8 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
         mean_excitation_kev: tube.anode.mean_excitation_kev(),
     };
     let theta = tube.anode_angle_deg.to_radians();
-    // Electrons arrive perpendicular to the central ray, i.e. at the anode angle θ to the target
-    // normal; depth below the face is s·cos θ and the photon's way out along the central ray is
-    // depth / sin θ, so the exit path is s·cot θ.
-    let exit_per_path = if options.self_absorption { theta.cos() / theta.sin() } else { 0.0 };
+    // Anode attenuation used for self-absorption (0 when switched off).
+    let absorbing = options.self_absorption;
 
     // Attenuating layers in beam order.
     let mut layers: Vec<Layer> = Vec::new();
@@ -201,7 +182,7 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
         }
         Ok((-mu_t).exp())
     };
-    let anode_mu_rho = |kev: f64| element.total_cm2_g(kev);
+    let anode_mu_rho = |kev: f64| if absorbing { element.total_cm2_g(kev) } else { 0.0 };
 
     // Energies inside a bin where μ jumps: the integrand is split there.
     let mut edges_kev = element.edges_kev().to_vec();
@@ -217,6 +198,7 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
     let mut continuum = vec![0.0; nbins];
     let gl_e = GaussLegendre::new(ENERGY_POINTS);
     let gl_t = GaussLegendre::new(DEPTH_POINTS);
+    let gl_ideal = GaussLegendre::new(32);
     let voltages = ripple_voltages_kv(tube.kvp, tube.ripple_percent);
     let weight_per_instant = 1.0 / voltages.len() as f64;
     let d_mm = options.distance_cm * 10.0;
@@ -233,6 +215,7 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
 
     for &t0 in &voltages {
         let c_tw = medium.thomson_whiddington_kev2_cm2_g(t0);
+        let depth = EmissionDepth::new(medium.z, t0, c_tw, theta);
         // Continuum: photons per keV per incident electron into 4π at energy e,
         // N(e) = (2 k Z / e) ∫_e^{T0} exp(−μ(e) s(T) cot θ) dT, s(T) = (T0² − T²)/C.
         for b in 0..nbins {
@@ -249,8 +232,8 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
                 let mut err = None;
                 let part = gl_e.integrate(w[0], w[1], |e| {
                     let inner = || -> Result<f64, SpectrumError> {
-                        let a = if exit_per_path > 0.0 { anode_mu_rho(e) * exit_per_path / c_tw } else { 0.0 };
-                        let j = if a == 0.0 { t0 - e } else { depth_integral(&gl_t, e, t0, a, |_| 1.0) };
+                        let mu = anode_mu_rho(e);
+                        let j = if !absorbing { t0 - e } else { depth.integral(&gl_t, e, mu, |_| 1.0) };
                         Ok(2.0 * KRAMERS_K_PER_KEV * medium.z / e * j * transmission(e)?)
                     };
                     inner().unwrap_or_else(|x| {
@@ -267,18 +250,63 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
         }
         // Characteristic lines: vacancies per electron from the Worthington–Tomlin cross
         // section along the Thomson–Whiddington path, ds = 2T dT / C, each line attenuated from
-        // the depth at which its vacancy was made.
+        // the depth at which its vacancy was made (direct excitation) ...
         let n_atoms = medium.atoms_per_g();
+        // ... plus photo-excitation by the anode's own continuum (indirect excitation): the
+        // continuum is made much closer to the surface than its absorption length above an
+        // edge, so it is treated as a surface source; the half emitted inwards is absorbed at
+        // depth z with density (μ/2)·E1(μz), and a line photon made there leaves along the
+        // central ray with exp(−λz), λ = μ_line/sin θ. ∫ (μ/2) E1(μz) e^{−λz} dz =
+        // (μ/2λ) ln(1 + λ/μ). Precomputed on an energy grid: (weight × photons per keV ×
+        // photoabsorption shares per shell, μ/ρ).
+        let mut indirect_grid: Vec<([f64; 4], f64)> = Vec::new();
+        if absorbing {
+            if let Some(lowest_edge) = shells.iter().map(|s| s.edge_kev).filter(|e| *e < t0).reduce(f64::min) {
+                let mut cuts = vec![lowest_edge];
+                cuts.extend(edges_kev.iter().copied().filter(|e| *e > lowest_edge && *e < t0));
+                cuts.push(t0);
+                for w in cuts.windows(2) {
+                    let pieces = ((w[1] - w[0]) / 2.0).ceil().max(1.0) as usize;
+                    let step = (w[1] - w[0]) / pieces as f64;
+                    for p in 0..pieces {
+                        let (a, b) = (w[0] + p as f64 * step, w[0] + (p + 1) as f64 * step);
+                        for (x, wt) in gl_e.nodes.iter().zip(&gl_e.weights) {
+                            let e = 0.5 * (a + b) + 0.5 * (b - a) * x;
+                            let n_e = 2.0 * KRAMERS_K_PER_KEV * medium.z / e * depth.integral(&gl_t, e, 0.0, |_| 1.0);
+                            let total = element.total_cm2_g(e);
+                            let photo_share = element.photo_cm2_g(e) / total;
+                            let shares = element.photo_shell_shares(e).map(|x| x * photo_share * n_e * wt * 0.5 * (b - a));
+                            indirect_grid.push((shares, total));
+                        }
+                    }
+                }
+            }
+        }
         let l1 = shells.iter().find(|x| x.name == "L1");
         let l2 = shells.iter().find(|x| x.name == "L2");
         let mut idx = 0;
         for s in &shells {
             for l in &s.lines {
-                let a = if exit_per_path > 0.0 { anode_mu_rho(l.kev) * exit_per_path / c_tw } else { 0.0 };
+                let mu = anode_mu_rho(l.kev);
+                let lambda = mu / theta.sin();
                 let vac = |sh: Option<&ShellInfo>| match sh {
-                    Some(sh) => depth_integral(&gl_t, sh.edge_kev.min(t0), t0, a, |t| {
-                        n_atoms * ionisation_cm2(t, sh.edge_kev, sh.electrons) * 2.0 * t / c_tw
-                    }),
+                    Some(sh) => {
+                        let per_kev = |t: f64| n_atoms * ionisation_cm2(t, sh.edge_kev, sh.electrons) * 2.0 * t / c_tw;
+                        if absorbing {
+                            let direct = depth.integral(&gl_t, sh.edge_kev.min(t0), mu, per_kev);
+                            let indirect: f64 = indirect_grid
+                                .iter()
+                                .map(|(shares, mu_e)| {
+                                    let r = lambda / mu_e;
+                                    let escape = if r < 1e-8 { 0.5 } else { 0.5 * r.ln_1p() / r };
+                                    shares[sh.index] * escape
+                                })
+                                .sum();
+                            direct + indirect
+                        } else {
+                            gl_ideal.integrate(sh.edge_kev.min(t0), t0, per_kev)
+                        }
+                    }
                     None => 0.0,
                 };
                 // Coster–Kronig: L1 vacancies move to L2 (f12) and L3 (f13); L2 ones to L3 (f23).
@@ -316,25 +344,6 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    // Brute-force composite Simpson with 200 000 panels is the reference for the depth integral.
-    #[test]
-    fn depth_integral_matches_brute_force() {
-        let gl = GaussLegendre::new(DEPTH_POINTS);
-        for &(lo, t0, a) in &[(1.0, 80.0, 0.0), (20.0, 80.0, 7.6e-4), (2.0, 80.0, 2.35e-2), (10.0, 150.0, 1e-3), (5.0, 100.0, 3e-3), (60.0, 100.0, 1e-2)] {
-            let g = |t: f64| 1.0 + 0.01 * t;
-            let got = depth_integral(&gl, lo, t0, a, g);
-            let n = 200_000;
-            let h = (t0 - lo) / n as f64;
-            let f = |t: f64| g(t) * (-a * (t0 * t0 - t * t)).exp();
-            let mut s = f(lo) + f(t0);
-            for i in 1..n {
-                s += if i % 2 == 1 { 4.0 } else { 2.0 } * f(lo + i as f64 * h);
-            }
-            let want = s * h / 3.0;
-            assert!((got / want - 1.0).abs() < 1e-6, "lo={lo} t0={t0} a={a}: {got} vs {want}");
-        }
-    }
 
     #[test]
     fn bin_edges_start_at_one_kev_and_end_at_kvp() {

@@ -133,6 +133,19 @@ pub fn solve_added_filtration(
     material: &str,
     target_hvl_mm_al: f64,
 ) -> Result<f64, SpectrumError> {
+    solve_added_filtration_for(tube, options, material, target_hvl_mm_al, "Al")
+}
+
+/// As [`solve_added_filtration`], with the HVL measured in `hvl_material` (e.g. "Cu" for
+/// orthovoltage beams); `target_hvl_mm` in mm of that material.
+pub fn solve_added_filtration_for(
+    tube: &Tube,
+    options: &SpectrumOptions,
+    material: &str,
+    target_hvl_mm: f64,
+    hvl_material: &str,
+) -> Result<f64, SpectrumError> {
+    let target_hvl_mm_al = target_hvl_mm;
     const MAX_MM: f64 = 50.0;
     let hvl_with = |t_mm: f64| -> Result<f64, SpectrumError> {
         let mut t = tube.clone();
@@ -140,7 +153,7 @@ pub fn solve_added_filtration(
             t.filters.push(Filter { material: material.to_string(), thickness_mm: t_mm });
         }
         let s = compute_spectrum(&t, options)?;
-        Ok(hvls_mm(&s, "Al")?.0)
+        Ok(hvls_mm(&s, hvl_material)?.0)
     };
     let start = hvl_with(0.0)?;
     let unreachable = |start| SpectrumError::TargetUnreachable {

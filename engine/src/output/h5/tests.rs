@@ -284,3 +284,58 @@ fn reading_a_non_hdf5_file_names_it() {
         "{err}"
     );
 }
+
+#[test]
+fn same_tree_gives_byte_identical_files() {
+    // No timestamps or addresses that vary between runs: a rerun with the same seed can be
+    // compared with `cmp` as well as dataset by dataset.
+    let dir = Scratch::new("repro");
+    let (a, b) = (dir.0.join("a.h5"), dir.0.join("b.h5"));
+    write_atomic_with(&a, &sample(1.0), &WriteOptions::default()).unwrap();
+    write_atomic_with(&b, &sample(1.0), &WriteOptions::default()).unwrap();
+    assert_eq!(std::fs::read(&a).unwrap(), std::fs::read(&b).unwrap());
+}
+
+#[test]
+fn foreign_layouts_are_refused_with_the_object_path() {
+    let dir = Scratch::new("foreign");
+    // A dataset without a `units` attribute.
+    let p = dir.0.join("nounits.h5");
+    let mut b = h5::FileBuilder::new();
+    let mut g = b.create_group("scorer");
+    g.create_dataset("dose").with_f64_data(&[1.0, 2.0]);
+    b.add_group(g.finish());
+    b.write(&p).unwrap();
+    let err = read(&p).unwrap_err();
+    assert!(matches!(err, OutputError::Unsupported { .. }), "{err}");
+    let msg = err.to_string();
+    assert!(
+        msg.contains("nounits.h5") && msg.contains("/scorer/dose") && msg.contains("units"),
+        "{msg}"
+    );
+
+    // A dataset directly under the root.
+    let p = dir.0.join("rootds.h5");
+    let mut b = h5::FileBuilder::new();
+    b.create_dataset("loose")
+        .with_f64_data(&[1.0])
+        .set_attr("units", h5::AttrValue::VarLenString("1".into()));
+    b.write(&p).unwrap();
+    let err = read(&p).unwrap_err();
+    assert!(err.to_string().contains("/loose"), "{err}");
+
+    // An element type the layout does not use (8-bit signed).
+    let p = dir.0.join("i8.h5");
+    let mut b = h5::FileBuilder::new();
+    let mut g = b.create_group("g");
+    g.create_dataset("x")
+        .with_i8_data(&[1, -1])
+        .set_attr("units", h5::AttrValue::VarLenString("1".into()));
+    b.add_group(g.finish());
+    b.write(&p).unwrap();
+    let err = read(&p).unwrap_err();
+    assert!(
+        err.to_string().contains("/g/x") && err.to_string().contains("element type"),
+        "{err}"
+    );
+}

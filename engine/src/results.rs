@@ -178,6 +178,17 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
                 pair(&mut g, "counts", &[mean.len()], mean, sigma, "1");
                 g
             }
+            (Scorer::AirKerma { axis, center_cm, radius_cm, .. }, _) => {
+                let mut g = Group::with_kind(&si.name, "air_kerma");
+                g.set_attr("labels", "total,towards_plus_axis,towards_minus_axis");
+                g.set_attr("normal_axis", ["x", "y", "z"][*axis]);
+                g.add_dataset(Dataset::f64_1d("center", vec![center_cm.x, center_cm.y, center_cm.z], "cm"));
+                g.set_attr("radius_cm", *radius_cm);
+                pair(&mut g, "kerma", &[3], mean[..3].to_vec(), sigma[..3].to_vec(), "Gy");
+                pair(&mut g, "fluence", &[3], mean[3..].to_vec(), sigma[3..].to_vec(), "1/cm2");
+                g.set_attr("normalisation", "air kerma (Gy) and planar photon fluence (1/cm2) per source history from photons crossing the disc, by direction; mu_en/rho of dry air from the project's tables");
+                g
+            }
             (Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, .. }, _) => {
                 let mut g = Group::with_kind(&si.name, "spectrum");
                 let b = *bins;

@@ -255,8 +255,19 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                 let bins = ((energy_max_kev - energy_min_kev) / bin_width_kev).round().max(1.0) as usize;
                 Scorer::transmitted_spectrum(*energy_min_kev, (energy_max_kev - energy_min_kev) / bins as f64, bins, false)
             }
-            ScoreKind::AirKerma { .. } | ScoreKind::VoxelDose { .. } | ScoreKind::Detector(_) => {
-                return Err(err(&key, "this kind of score cannot be run by this version yet (available: layer_energy, depth_dose, escape, interaction_counts, transmitted_spectrum)"));
+            ScoreKind::AirKerma { position_cm, normal_axis, radius_cm } => {
+                let air = library::lookup("air").map_err(|e| err(&key, e.to_string()))?;
+                air.absorption_table().map_err(|e| err(&key, e.to_string()))?;
+                Scorer::AirKerma {
+                    axis: match normal_axis { deck::Axis::X => 0, deck::Axis::Y => 1, deck::Axis::Z => 2 },
+                    center_cm: vec3(*position_cm),
+                    radius_cm: *radius_cm,
+                    air: std::sync::Arc::new(air),
+                    tally: crate::score::Tally::new(6),
+                }
+            }
+            ScoreKind::VoxelDose { .. } | ScoreKind::Detector(_) => {
+                return Err(err(&key, "this kind of score cannot be run by this version yet (available: layer_energy, depth_dose, escape, interaction_counts, transmitted_spectrum, air_kerma)"));
             }
         };
         scorers.push(scorer);

@@ -42,6 +42,19 @@ pub struct Problem {
     pub scorers: Vec<Scorer>,
 }
 
+impl Problem {
+    /// True when some scorer needs every flight segment.
+    #[inline]
+    fn segments_wanted(&self) -> bool {
+        self.scorers.iter().any(Scorer::wants_segments)
+    }
+
+    #[inline]
+    fn interactions_wanted(&self) -> bool {
+        self.scorers.iter().any(Scorer::wants_interactions)
+    }
+}
+
 #[derive(Debug, Clone, Copy)]
 struct Photon {
     pos: Vec3,
@@ -127,6 +140,8 @@ pub struct HistoryOutcome {
 
 struct Ctx<'a> {
     scorers: &'a mut [Scorer],
+    segments: bool,
+    sites: bool,
     history: u64,
     outcome: HistoryOutcome,
 }
@@ -150,6 +165,13 @@ impl Ctx<'_> {
         }
     }
     #[inline]
+    fn segment(&mut self, p: &Photon, length_cm: f64) {
+        let view = p.view();
+        for s in self.scorers.iter_mut() {
+            s.segment(&view, length_cm, self.history);
+        }
+    }
+    #[inline]
     fn count(&mut self, bin: usize, w: f64) {
         for s in self.scorers.iter_mut() {
             s.count(bin, w, self.history);
@@ -163,7 +185,9 @@ impl Problem {
     pub fn run_history(&self, seed: u64, history: u64, scorers: &mut [Scorer]) -> HistoryOutcome {
         let mut rng = history_stream(seed, history);
         let (pos, dir, kev) = self.source.sample(&mut rng);
-        let mut ctx = Ctx { scorers, history, outcome: HistoryOutcome { incident_kev: kev, ..Default::default() } };
+        let segments = self.segments_wanted();
+        let sites = self.interactions_wanted();
+        let mut ctx = Ctx { scorers, history, segments, sites, outcome: HistoryOutcome { incident_kev: kev, ..Default::default() } };
         let mut stack = [Photon::new(pos, dir, kev, 1.0, Region::ESCAPED, false); STACK_DEPTH];
         let mut depth = 1usize;
         match &self.geometry {
@@ -207,9 +231,15 @@ impl Problem {
                 _ => f64::INFINITY,
             };
             if free_path >= boundary.distance_cm {
+                if ctx.segments {
+                    ctx.segment(&p, boundary.distance_cm);
+                }
                 p.pos = boundary.landing(p.pos, p.dir);
                 p.region = boundary.next;
                 continue;
+            }
+            if ctx.segments {
+                ctx.segment(&p, free_path);
             }
             p.pos = p.pos + p.dir * free_path;
             let (m, _) = medium.unwrap();
@@ -233,6 +263,12 @@ impl Problem {
         let (component, kind) = material.sample_channel_at(p.cached, rng);
         let c = &material.components[component];
         ctx.count(Scorer::interaction_bin(kind), p.weight);
+        if ctx.sites {
+            let site = crate::score::InteractionSite { photon: p.view(), region: p.region, material: p.cached_material, element: c.element, kind };
+            for s in ctx.scorers.iter_mut() {
+                s.interaction(self, &site, ctx.history);
+            }
+        }
         match kind {
             Interaction::Photoelectric => {
                 let mut local = p.kev;

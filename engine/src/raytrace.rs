@@ -1,0 +1,45 @@
+//! Ray tracing through a problem's geometry: the optical depth ∫μ ds along a straight line, for
+//! deterministic primary images and next-event (forced-detection) estimates.
+
+use crate::physics::xs::MaterialXs;
+use crate::transport::Geometry;
+use dosemill_geometry::{Region, Vec3};
+
+/// Optical depth ∫μ ds (dimensionless) for a photon of `kev` from `from` along unit `dir` over
+/// `length_cm` (or until it leaves the world, whichever comes first).
+pub fn optical_depth(geometry: &Geometry, materials: &[MaterialXs], from: Vec3, dir: Vec3, length_cm: f64, kev: f64) -> f64 {
+    match geometry {
+        Geometry::Slabs(slabs) => {
+            let mut p = from;
+            let mut r = slabs.locate(p);
+            let mut left = length_cm;
+            let mut tau = 0.0;
+            let ln_kev = kev.ln();
+            // Each layer is crossed once per straight ray, plus the world: bounded by the layer count.
+            let mut guard = 4 * (slabs.num_layers() + 4);
+            while left > 0.0 && !r.is_escaped() && guard > 0 {
+                guard -= 1;
+                let b = slabs.step(p, dir, r);
+                let s = b.distance_cm.min(left);
+                if let Some((m, rho)) = slabs.material_of(r) {
+                    let t = &materials[m as usize];
+                    tau += t.mu_rho_at(t.lookup_ln(ln_kev)) * rho * s;
+                }
+                left -= s;
+                if b.distance_cm >= left + s {
+                    break;
+                }
+                p = b.landing(p, dir);
+                r = b.next;
+            }
+            tau
+        }
+    }
+}
+
+/// The region at a point (for callers that need the medium at an interaction site).
+pub fn locate(geometry: &Geometry, p: Vec3) -> Region {
+    match geometry {
+        Geometry::Slabs(s) => s.locate(p),
+    }
+}

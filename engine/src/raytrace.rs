@@ -34,12 +34,35 @@ pub fn optical_depth(geometry: &Geometry, materials: &[MaterialXs], from: Vec3, 
             }
             tau
         }
+        Geometry::Voxels(world) => {
+            let grid = &*world.grid;
+            let ln_kev = kev.ln();
+            let mut tau = 0.0;
+            // World medium outside the grid.
+            if let Some(medium) = grid.world().medium {
+                let t = &materials[medium.material as usize];
+                let mu = t.mu_rho_at(t.lookup_ln(ln_kev)) * medium.density_g_cm3;
+                let total = match grid.world().bounds.chord(from, dir) {
+                    Some(c) => (c.exit_cm.min(length_cm) - c.enter_cm.max(0.0)).max(0.0),
+                    None => 0.0,
+                };
+                let inside = match grid.bounds().chord(from, dir) {
+                    Some(c) => (c.exit_cm.min(length_cm) - c.enter_cm.max(0.0)).max(0.0),
+                    None => 0.0,
+                };
+                tau += mu * (total - inside).max(0.0);
+            }
+            for seg in grid.walk(from, dir, length_cm) {
+                let (m, rho) = grid.voxel_medium(seg.index);
+                let t = &materials[m as usize];
+                tau += t.mu_rho_at(t.lookup_ln(ln_kev)) * rho * seg.length_cm;
+            }
+            tau
+        }
     }
 }
 
 /// The region at a point (for callers that need the medium at an interaction site).
 pub fn locate(geometry: &Geometry, p: Vec3) -> Region {
-    match geometry {
-        Geometry::Slabs(s) => s.locate(p),
-    }
+    geometry.locate(p)
 }

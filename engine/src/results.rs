@@ -189,6 +189,7 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
                 g.set_attr("normalisation", "air kerma (Gy) and planar photon fluence (1/cm2) per source history from photons crossing the disc, by direction; mu_en/rho of dry air from the project's tables");
                 g
             }
+            (Scorer::VoxelDose(v), _) => voxel_dose_group(&si.name, v, mean, sigma),
             (Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, .. }, _) => {
                 let mut g = Group::with_kind(&si.name, "spectrum");
                 let b = *bins;
@@ -208,4 +209,70 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
         f.add_group(group);
     }
     f
+}
+
+/// The group of a voxel-dose score: the dose grid (kind `dose_grid`, [z, y, x] order, x fastest
+/// as the voxel index), its uncertainty, the central-axis depth dose, and per-region sums.
+fn voxel_dose_group(name: &str, v: &crate::score::voxel_dose::VoxelDose, mean: Vec<f64>, sigma: Vec<f64>) -> Group {
+    let grid = &v.grid;
+    let l = grid.layout();
+    let pd = grid.dims();
+    let n = v.voxels();
+    // Masses of the scoring voxels and of the regions (g).
+    let voxel_volume = l.voxel_size_cm.x * l.voxel_size_cm.y * l.voxel_size_cm.z;
+    let regions = v.labels.as_ref().map(|x| x.1.len()).unwrap_or(0);
+    let mut mass = vec![0.0; n];
+    let mut region_mass = vec![0.0; regions];
+    for i in 0..grid.num_voxels() {
+        let (_, rho) = grid.voxel_medium(i);
+        let (ix, iy, iz) = (i % pd[0], (i / pd[0]) % pd[1], i / (pd[0] * pd[1]));
+        let b = ix / v.block[0] + v.dims[0] * (iy / v.block[1] + v.dims[1] * (iz / v.block[2]));
+        mass[b] += rho * voxel_volume;
+        if let Some(lab) = &v.labels {
+            region_mass[lab.0[i] as usize] += rho * voxel_volume;
+        }
+    }
+    let to_gy = |e: f64, m: f64| if m > 0.0 { e * JOULE_PER_KEV / (m * 1e-3) } else { 0.0 };
+    let dose: Vec<f64> = (0..n).map(|i| to_gy(mean[i], mass[i])).collect();
+    let dose_s: Vec<f64> = (0..n).map(|i| to_gy(sigma[i], mass[i])).collect();
+    let shape = [v.dims[2], v.dims[1], v.dims[0]];
+    let mut g = Group::with_kind(name, "dose_grid");
+    g.set_attr("estimator", match v.estimator {
+        crate::score::voxel_dose::DoseEstimator::Analog => "analog",
+        crate::score::voxel_dose::DoseEstimator::TrackLength => "track_length",
+    });
+    g.set_attr("normalisation", "dose (Gy) per source history in each scoring voxel, kerma approximation; array order [z, y, x]");
+    pair(&mut g, "dose", &shape, dose.clone(), dose_s.clone(), "Gy");
+    pair(&mut g, "energy", &shape, mean[..n].to_vec(), sigma[..n].to_vec(), "keV");
+    g.add_dataset(Dataset::f64_nd("mass", &shape, mass.clone(), "g"));
+    let edges_along = |a: usize| -> Vec<f64> {
+        let w = l.voxel_size_cm.axis(a) * v.block[a] as f64;
+        (0..=v.dims[a]).map(|k| (l.origin_cm.axis(a) + k as f64 * w).min(l.origin_cm.axis(a) + pd[a] as f64 * l.voxel_size_cm.axis(a))).collect()
+    };
+    let (ez, ey, ex) = (edges_along(2), edges_along(1), edges_along(0));
+    for ds in ["dose", "dose_sigma", "energy", "energy_sigma", "mass"] {
+        g.attach_axis(ds, 0, "z_edges", &ez, "cm").expect("consistent axis layout");
+        g.attach_axis(ds, 1, "y_edges", &ey, "cm").expect("consistent axis layout");
+        g.attach_axis(ds, 2, "x_edges", &ex, "cm").expect("consistent axis layout");
+    }
+    // Central-axis depth dose: the column of scoring voxels through the grid's centre along z.
+    let (cx, cy) = (v.dims[0] / 2, v.dims[1] / 2);
+    let col: Vec<usize> = (0..v.dims[2]).map(|k| cx + v.dims[0] * (cy + v.dims[1] * k)).collect();
+    let mut axis = Group::with_kind("central_axis", "depth_dose");
+    axis.set_attr("normalisation", "dose (Gy) per source history in the column of scoring voxels through the grid centre along z");
+    pair(&mut axis, "dose", &[col.len()], col.iter().map(|&i| dose[i]).collect(), col.iter().map(|&i| dose_s[i]).collect(), "Gy");
+    axis.add_dataset(Dataset::f64_1d("depth_edges", ez.clone(), "cm").with_attr("label", "z"));
+    axis.attach_axis("dose", 0, "depth_edges", &ez, "cm").expect("consistent axis layout");
+    axis.attach_axis("dose_sigma", 0, "depth_edges", &ez, "cm").expect("consistent axis layout");
+    g.add_group(axis);
+    if let Some(lab) = &v.labels {
+        let mut r = Group::with_kind("regions", "region_dose");
+        r.set_attr("labels", lab.1.join(","));
+        let rd: Vec<f64> = (0..regions).map(|k| to_gy(mean[n + k], region_mass[k])).collect();
+        let rs: Vec<f64> = (0..regions).map(|k| to_gy(sigma[n + k], region_mass[k])).collect();
+        pair(&mut r, "mean_dose", &[regions], rd, rs, "Gy");
+        r.add_dataset(Dataset::f64_1d("mass", region_mass, "g"));
+        g.add_group(r);
+    }
+    g
 }

@@ -98,18 +98,34 @@ struct MaterialSet<'a> {
     names: Vec<String>,
     tables: Vec<MaterialXs>,
     nominal: Vec<f64>,
+    library: Vec<Material>,
 }
 
 impl MaterialSet<'_> {
     fn index(&mut self, name: &str, key: &str) -> Result<u16, SetupError> {
-        if let Some(i) = self.names.iter().position(|n| n == name) {
+        self.index_at(name, None, key)
+    }
+
+    /// The index of material `name`, or of a variant of it at another density (named
+    /// `name@density`).
+    fn index_at(&mut self, name: &str, density_g_cm3: Option<f64>, key: &str) -> Result<u16, SetupError> {
+        let label = match density_g_cm3 {
+            Some(d) => format!("{name}@{d}"),
+            None => name.to_string(),
+        };
+        if let Some(i) = self.names.iter().position(|n| *n == label) {
             return Ok(i as u16);
         }
-        let m = resolve_material(self.deck, name, key)?;
+        let mut m = resolve_material(self.deck, name, key)?;
+        if let Some(d) = density_g_cm3 {
+            m = m.with_density(d).map_err(|e| err(key, e.to_string()))?.with_name(&label);
+        }
+        let name = label.as_str();
         let table = MaterialXs::new(m.name(), m.density_g_cm3(), m.composition(), &self.options).map_err(|e| err(key, e.to_string()))?;
         self.names.push(name.to_string());
         self.nominal.push(m.density_g_cm3());
         self.tables.push(table);
+        self.library.push(m);
         Ok((self.tables.len() - 1) as u16)
     }
 }
@@ -144,7 +160,7 @@ pub fn tube_of(t: &deck::Tube) -> spectrum::Tube {
 /// Builds the problem of a resolved deck.
 pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
     let options = physics_options(d);
-    let mut mats = MaterialSet { deck: d, options, names: Vec::new(), tables: Vec::new(), nominal: Vec::new() };
+    let mut mats = MaterialSet { deck: d, options, names: Vec::new(), tables: Vec::new(), nominal: Vec::new(), library: Vec::new() };
 
     // Source.
     let mut info_spectrum = None;
@@ -232,10 +248,31 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                 .map_err(|e| err("geometry", e.to_string()))?;
             (Geometry::Slabs(stack), table, world.map(|w| w.density_g_cm3).unwrap_or(0.0))
         }
-        deck::Geometry::Voxels(_) => {
-            return Err(err("geometry.kind", "voxel geometry cannot be run by this version yet; use kind = \"slabs\""));
+        deck::Geometry::Voxels(v) => {
+            let (grid, labels) = build_voxels(v, &mut mats)?;
+            let world = match v.world {
+                deck::World::Vacuum => None,
+                deck::World::Air => {
+                    let m = mats.index("air", "geometry.world")?;
+                    Some(Medium::new(m, mats.nominal[m as usize]))
+                }
+            };
+            // World: the grid plus 1 cm, stretched to hold the source; photons leaving it escape.
+            let gb = grid.bounds();
+            let src = vec3(match &d.source.shape {
+                SourceShape::Pencil { position_cm, .. } | SourceShape::Parallel { position_cm, .. } | SourceShape::Point { position_cm, .. } => *position_cm,
+            });
+            let one = Vec3::new(1.0, 1.0, 1.0);
+            let bounds = dosemill_geometry::Aabb::new(gb.min_cm.min(src) - one, gb.max_cm.max(src) + one);
+            let grid = grid.with_world(dosemill_geometry::World { medium: world, bounds }).map_err(|e| err("geometry", e.to_string()))?;
+            let mut max_density = grid.max_density_by_material();
+            max_density.resize(mats.tables.len(), 0.0);
+            let majorant = crate::physics::majorant::Majorant::new(&mats.tables, &max_density);
+            let world = crate::transport::VoxelWorld { grid: std::sync::Arc::new(grid), majorant, labels: labels.map(std::sync::Arc::new) };
+            (Geometry::Voxels(Box::new(world)), Vec::new(), 0.0)
         }
     };
+    let library_materials = std::sync::Arc::new(mats.library.clone());
 
     // Scorers.
     let n_layers = layers.len();
@@ -266,7 +303,30 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                     tally: crate::score::Tally::new(6),
                 }
             }
-            ScoreKind::VoxelDose { .. } | ScoreKind::Detector(_) => {
+            ScoreKind::VoxelDose { estimator, grid } => {
+                let Geometry::Voxels(world) = &geometry else {
+                    return Err(err(&key, "a voxel_dose score needs voxel geometry"));
+                };
+                let block = match grid {
+                    None => [1, 1, 1],
+                    Some(g) => scoring_blocks(&world.grid, g).map_err(|m| err(&key, m))?,
+                };
+                let estimator = match estimator {
+                    deck::Estimator::Analog => crate::score::voxel_dose::DoseEstimator::Analog,
+                    deck::Estimator::TrackLength => crate::score::voxel_dose::DoseEstimator::TrackLength,
+                };
+                for m in library_materials.iter() {
+                    m.absorption_table().map_err(|e| err(&key, e.to_string()))?;
+                }
+                Scorer::VoxelDose(Box::new(crate::score::voxel_dose::VoxelDose::new(
+                    estimator,
+                    world.grid.clone(),
+                    block,
+                    world.labels.clone(),
+                    library_materials.clone(),
+                )))
+            }
+            ScoreKind::Detector(_) => {
                 return Err(err(&key, "this kind of score cannot be run by this version yet (available: layer_energy, depth_dose, escape, interaction_counts, transmitted_spectrum, air_kerma)"));
             }
         };
@@ -286,4 +346,130 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
         field_area_cm2,
     };
     Ok((problem, info))
+}
+
+/// Phantom voxels per scoring voxel for a coarser scoring grid that must tile the phantom grid.
+fn scoring_blocks(grid: &dosemill_geometry::VoxelGrid, g: &deck::Grid) -> Result<[usize; 3], String> {
+    let l = grid.layout();
+    let mut block = [1usize; 3];
+    for a in 0..3 {
+        let ratio = g.voxel_size_cm[a] / l.voxel_size_cm.axis(a);
+        let k = ratio.round();
+        if k < 1.0 || (ratio - k).abs() > 1e-6 * k {
+            return Err(format!("the scoring voxel size {} cm along axis {a} is not a whole multiple of the phantom's {} cm", g.voxel_size_cm[a], l.voxel_size_cm.axis(a)));
+        }
+        if (g.origin_cm[a] - l.origin_cm.axis(a)).abs() > 1e-9 * (1.0 + l.origin_cm.axis(a).abs()) {
+            return Err(format!("the scoring grid origin {:?} must equal the phantom's origin", g.origin_cm));
+        }
+        block[a] = k as usize;
+        let want = l.dims[a].div_ceil(block[a]) as u64;
+        if g.voxels[a] != want {
+            return Err(format!("the scoring grid needs {want} voxels along axis {a} to cover the phantom, not {}", g.voxels[a]));
+        }
+    }
+    Ok(block)
+}
+
+fn grid_layout(g: &deck::Grid) -> dosemill_geometry::GridLayout {
+    dosemill_geometry::GridLayout {
+        dims: [g.voxels[0] as usize, g.voxels[1] as usize, g.voxels[2] as usize],
+        voxel_size_cm: vec3(g.voxel_size_cm),
+        origin_cm: vec3(g.origin_cm),
+    }
+}
+
+/// The voxel grid of a deck, with region labels for phantoms. Materials are registered in the
+/// grid's own order, so the grid's material indices are the problem's.
+#[allow(clippy::type_complexity)]
+fn build_voxels(v: &deck::Voxels, mats: &mut MaterialSet) -> Result<(dosemill_geometry::VoxelGrid, Option<(Vec<u16>, Vec<String>)>), SetupError> {
+    use dosemill_geometry::phantom::{build_phantom, PhantomPart, PhantomSpec, Shape};
+    use dosemill_geometry::{MaterialIndices, VoxelGrid};
+    let key = "geometry";
+    match &v.content {
+        deck::VoxelContent::Phantom { grid, fill, shapes } => {
+            // Materials in grid order: the fill, then each shape's (a shape with its own density
+            // gets a variant of its material at that density).
+            let fill_idx = mats.index(&fill.name, "geometry.phantom.fill")?;
+            debug_assert_eq!(fill_idx, 0);
+            let mut parts = Vec::new();
+            for (i, sh) in shapes.iter().enumerate() {
+                let material = mats.index_at(&sh.material.name, sh.density_g_cm3, &format!("geometry.phantom.shape[{i}].material"))?;
+                let c = sh.center_cm;
+                let shape = match &sh.form {
+                    deck::ShapeForm::Box { half_size_cm } => Shape::Box { center_cm: c, half_size_cm: *half_size_cm },
+                    deck::ShapeForm::Sphere { radius_cm } => Shape::Sphere { center_cm: c, radius_cm: *radius_cm },
+                    deck::ShapeForm::Ellipsoid { half_size_cm } => Shape::Ellipsoid { center_cm: c, semi_axes_cm: *half_size_cm },
+                    deck::ShapeForm::Cylinder { radius_cm, length_cm, axis } => Shape::Cylinder {
+                        center_cm: c,
+                        axis: match axis { deck::Axis::X => [1.0, 0.0, 0.0], deck::Axis::Y => [0.0, 1.0, 0.0], deck::Axis::Z => [0.0, 0.0, 1.0] },
+                        radius_cm: *radius_cm,
+                        length_cm: *length_cm,
+                    },
+                };
+                parts.push(PhantomPart { shape, material, region: sh.region.clone() });
+            }
+            let l = grid_layout(grid);
+            let names = mats.names.clone();
+            let spec = PhantomSpec {
+                dims: l.dims,
+                voxel_size_cm: grid.voxel_size_cm,
+                origin_cm: grid.origin_cm,
+                materials: names.clone(),
+                background_material: 0,
+                parts,
+                supersample: 1,
+            };
+            let ph = build_phantom(&spec).map_err(|e| err(key, e.to_string()))?;
+            let mut g = ph.grid;
+            let nominal: Vec<f64> = (0..names.len()).map(|i| mats.nominal[i]).collect();
+            g.set_nominal_densities(&nominal).map_err(|e| err(key, e.to_string()))?;
+            Ok((g, Some((ph.labels, ph.label_names))))
+        }
+        deck::VoxelContent::Raw { path, grid, bytes_per_voxel, labels } => {
+            let bytes = std::fs::read(path).map_err(|e| err("geometry.file", format!("{}: {e}", path.display())))?;
+            let l = grid_layout(grid);
+            let n = l.num_voxels() as usize;
+            let expected = n * *bytes_per_voxel as usize;
+            if bytes.len() != expected {
+                return Err(err("geometry.file", format!("{}: the grid needs {expected} bytes, the file has {}", path.display(), bytes.len())));
+            }
+            // Label values → material indices in the order the labels are listed.
+            let mut map = std::collections::HashMap::new();
+            for (label, m) in labels {
+                let idx = mats.index(&m.name, &format!("geometry.labels `{label}`"))?;
+                map.insert(*label, idx);
+            }
+            let mut idx = Vec::with_capacity(n);
+            for i in 0..n {
+                let label = if *bytes_per_voxel == 1 { bytes[i] as u32 } else { u16::from_le_bytes([bytes[2 * i], bytes[2 * i + 1]]) as u32 };
+                match map.get(&label) {
+                    Some(&m) => idx.push(m),
+                    None => {
+                        let [ix, iy, iz] = l.ijk(i);
+                        return Err(err("geometry.labels", format!("{}: voxel ({ix},{iy},{iz}) has label {label}, which the deck's labels do not list", path.display())));
+                    }
+                }
+            }
+            let names = mats.names.clone();
+            let indices = if names.len() <= 256 { MaterialIndices::U8(idx.iter().map(|&m| m as u8).collect()) } else { MaterialIndices::U16(idx) };
+            let mut g = VoxelGrid::new(l, indices, None, names).map_err(|e| err(key, e.to_string()))?;
+            g.set_nominal_densities(&mats.nominal.clone()).map_err(|e| err(key, e.to_string()))?;
+            Ok((g, None))
+        }
+        deck::VoxelContent::Hdf5 { path } => {
+            let mut g = dosemill_geometry::voxel_file::read_hdf5_voxels(path).map_err(|e| err("geometry.file", e.to_string()))?;
+            let names: Vec<String> = g.material_names().to_vec();
+            for (i, n) in names.iter().enumerate() {
+                let idx = mats.index(n, &format!("geometry.file material `{n}`"))?;
+                if idx as usize != i {
+                    return Err(err("geometry.file", format!("material `{n}` is listed twice in {}", path.display())));
+                }
+            }
+            if !g.densities_known() {
+                let nominal: Vec<f64> = (0..names.len()).map(|i| mats.nominal[i]).collect();
+                g.set_nominal_densities(&nominal).map_err(|e| err(key, e.to_string()))?;
+            }
+            Ok((g, None))
+        }
+    }
 }

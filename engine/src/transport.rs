@@ -13,7 +13,8 @@ use crate::physics::{compton, fluorescence, isotropic, photoelectric, rotate, xs
 use crate::rng::{chunk_range, history_stream, Stream};
 use crate::score::{counts, PhotonView, Scorer};
 use crate::source::Source;
-use dosemill_geometry::{Region, SlabStack, Vec3};
+use crate::physics::majorant::Majorant;
+use dosemill_geometry::{Region, SlabStack, Vec3, VoxelGrid};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 /// Most photons a history can hold waiting (fluorescence); beyond this, the energy of further
@@ -25,6 +26,38 @@ pub const STACK_DEPTH: usize = 8;
 pub enum Geometry {
     /// A stack of slabs, tracked exactly.
     Slabs(SlabStack),
+    /// A voxel grid in a world box, tracked by Woodcock (delta) tracking inside the grid and
+    /// exactly in the world medium around it.
+    Voxels(Box<VoxelWorld>),
+}
+
+/// A voxel grid with its tracking majorant and region labels.
+#[derive(Debug, Clone)]
+pub struct VoxelWorld {
+    /// The grid (shared with scorers that walk it).
+    pub grid: std::sync::Arc<VoxelGrid>,
+    /// μ_max(E) over the grid's materials at their largest densities.
+    pub majorant: Majorant,
+    /// Region label per voxel and the label names (phantom regions), if any.
+    pub labels: Option<std::sync::Arc<(Vec<u16>, Vec<String>)>>,
+}
+
+impl Geometry {
+    /// The world box.
+    pub fn world_bounds(&self) -> dosemill_geometry::Aabb {
+        match self {
+            Geometry::Slabs(s) => s.world().bounds,
+            Geometry::Voxels(v) => v.grid.world().bounds,
+        }
+    }
+
+    /// The region of a point (for starting points).
+    pub fn locate(&self, p: Vec3) -> Region {
+        match self {
+            Geometry::Slabs(s) => s.locate(p),
+            Geometry::Voxels(v) => v.grid.locate(p),
+        }
+    }
 }
 
 /// Everything a run needs except the run settings.
@@ -190,13 +223,20 @@ impl Problem {
         let mut ctx = Ctx { scorers, history, segments, sites, outcome: HistoryOutcome { incident_kev: kev, ..Default::default() } };
         let mut stack = [Photon::new(pos, dir, kev, 1.0, Region::ESCAPED, false); STACK_DEPTH];
         let mut depth = 1usize;
+        stack[0].region = enter_world(&self.geometry, pos, dir, &mut stack[0].pos);
         match &self.geometry {
             Geometry::Slabs(slabs) => {
-                stack[0].region = enter_world(slabs, pos, dir, &mut stack[0].pos);
                 while depth > 0 {
                     depth -= 1;
                     let photon = stack[depth];
                     self.track_slabs(slabs, photon, &mut rng, &mut ctx, &mut stack, &mut depth);
+                }
+            }
+            Geometry::Voxels(world) => {
+                while depth > 0 {
+                    depth -= 1;
+                    let photon = stack[depth];
+                    self.track_voxels(world, photon, &mut rng, &mut ctx, &mut stack, &mut depth);
                 }
             }
         }
@@ -245,6 +285,95 @@ impl Problem {
             let (m, _) = medium.unwrap();
             if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
                 return;
+            }
+        }
+    }
+
+    /// Follows one photon through a voxel world until it is absorbed or escapes: exact tracking
+    /// in the world medium, Woodcock tracking with the majorant inside the grid (a tentative
+    /// collision at distance −ln ξ/μ_max is real with probability μ(voxel)/μ_max).
+    #[inline]
+    fn track_voxels(
+        &self,
+        world: &VoxelWorld,
+        mut p: Photon,
+        rng: &mut Stream,
+        ctx: &mut Ctx,
+        stack: &mut [Photon; STACK_DEPTH],
+        depth: &mut usize,
+    ) {
+        if p.kev < self.options.cutoff_kev {
+            ctx.count(counts::CUTOFF, p.weight);
+            ctx.deposit(p.region, p.pos, p.kev * p.weight);
+            return;
+        }
+        let grid = &*world.grid;
+        let bounds = grid.bounds();
+        let world_box = grid.world().bounds;
+        loop {
+            if p.region.is_escaped() {
+                ctx.escape(&p);
+                return;
+            }
+            if p.region.is_world() {
+                let boundary = grid.step(p.pos, p.dir, p.region);
+                let medium = grid.material_of(p.region);
+                let free_path = match medium {
+                    Some((m, rho)) if rho > 0.0 => rng.exponential() / (p.mu_rho(m, &self.materials) * rho),
+                    _ => f64::INFINITY,
+                };
+                if free_path >= boundary.distance_cm {
+                    if ctx.segments {
+                        ctx.segment(&p, boundary.distance_cm);
+                    }
+                    p.pos = boundary.landing(p.pos, p.dir);
+                    p.region = boundary.next;
+                    continue;
+                }
+                if ctx.segments {
+                    ctx.segment(&p, free_path);
+                }
+                p.pos = p.pos + p.dir * free_path;
+                let (m, _) = medium.unwrap();
+                if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
+                    return;
+                }
+                continue;
+            }
+            // Inside the grid: delta tracking to the next real collision or out of the grid.
+            let mu_max = world.majorant.mu_per_cm_ln(p.ln_kev);
+            let s = rng.exponential() / mu_max;
+            let (exit, axis, plane) = bounds.exit(p.pos, p.dir);
+            if s >= exit {
+                if ctx.segments {
+                    ctx.segment(&p, exit);
+                }
+                let mut q = p.pos + p.dir * exit;
+                if let Some(a) = axis.index() {
+                    q = q.with_axis(a, plane);
+                }
+                p.pos = q;
+                // Just beyond the grid face: the world, unless the world box ends there too.
+                let beyond = q + p.dir * (1e-9 * (1.0 + bounds.scale_cm()));
+                p.region = if world_box.contains(beyond) { Region::WORLD } else { Region::ESCAPED };
+                continue;
+            }
+            if ctx.segments {
+                ctx.segment(&p, s);
+            }
+            p.pos = p.pos + p.dir * s;
+            let Some(v) = grid.voxel_at(p.pos) else {
+                // Rounding put the point on the outer face: leave through it.
+                p.region = Region::WORLD;
+                continue;
+            };
+            let (m, rho) = grid.voxel_medium(v);
+            let mu = p.mu_rho(m, &self.materials) * rho;
+            if rng.uniform() * mu_max < mu {
+                p.region = Region::object(v);
+                if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
+                    return;
+                }
             }
         }
     }
@@ -314,21 +443,21 @@ impl Problem {
 
 /// The region a source photon starts in; a photon starting outside the world box is moved to
 /// where its ray enters the box (or escapes at once if it misses).
-fn enter_world(slabs: &SlabStack, pos: Vec3, dir: Vec3, out: &mut Vec3) -> Region {
-    let r = slabs.locate(pos);
+fn enter_world(geometry: &Geometry, pos: Vec3, dir: Vec3, out: &mut Vec3) -> Region {
+    let r = geometry.locate(pos);
     if !r.is_escaped() {
         return r;
     }
-    match slabs.world().bounds.chord(pos, dir) {
+    let b = geometry.world_bounds();
+    match b.chord(pos, dir) {
         Some(c) if c.enter_cm >= 0.0 && c.exit_cm > c.enter_cm => {
             let mut q = pos + dir * c.enter_cm;
             if let Some(a) = c.enter_axis.index() {
-                let b = slabs.world().bounds;
                 let plane = if dir.axis(a) > 0.0 { b.min_cm.axis(a) } else { b.max_cm.axis(a) };
                 q = q.with_axis(a, plane);
             }
             *out = q;
-            slabs.locate(q)
+            geometry.locate(q)
         }
         _ => Region::ESCAPED,
     }

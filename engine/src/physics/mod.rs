@@ -14,6 +14,7 @@
 pub mod compton;
 pub mod fluorescence;
 pub mod klein_nishina;
+pub mod majorant;
 pub mod photoelectric;
 pub mod rayleigh;
 pub mod xs;

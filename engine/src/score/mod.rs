@@ -6,6 +6,7 @@
 //! kerma-approximation energy: what the photon gives to electrons is counted where it happens.
 
 pub mod tally;
+pub mod voxel_dose;
 
 pub use tally::Tally;
 
@@ -121,6 +122,8 @@ pub enum Scorer {
         /// fluence total, towards +axis, towards −axis (1/cm²).
         tally: Tally,
     },
+    /// Dose in the voxels of a grid (analog or track-length), with per-region sums.
+    VoxelDose(Box<voxel_dose::VoxelDose>),
     /// Spectrum of photons leaving the problem forward (+z), or in every direction, split into
     /// uncollided source photons, scattered source photons and fluorescence photons.
     TransmittedSpectrum {
@@ -174,6 +177,7 @@ impl Scorer {
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
             | Scorer::AirKerma { tally, .. } => tally,
+            Scorer::VoxelDose(v) => &v.tally,
         }
     }
 
@@ -186,6 +190,7 @@ impl Scorer {
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
             | Scorer::AirKerma { tally, .. } => tally,
+            Scorer::VoxelDose(v) => &mut v.tally,
         }
     }
 
@@ -202,12 +207,20 @@ impl Scorer {
 
     /// True for scorers that need every flight segment ([`Scorer::segment`]).
     pub fn wants_segments(&self) -> bool {
-        matches!(self, Scorer::AirKerma { .. })
+        match self {
+            Scorer::AirKerma { .. } => true,
+            Scorer::VoxelDose(v) => v.estimator == voxel_dose::DoseEstimator::TrackLength,
+            _ => false,
+        }
     }
 
     /// A straight flight of `photon` from its position over `length_cm` (through any medium).
     #[inline]
     pub fn segment(&mut self, photon: &PhotonView, length_cm: f64, history: u64) {
+        if let Scorer::VoxelDose(v) = self {
+            v.segment(photon, length_cm, history);
+            return;
+        }
         if let Scorer::AirKerma { axis, center_cm, radius_cm, air, tally } = self {
             let a = *axis;
             let plane = center_cm.axis(a);
@@ -256,6 +269,7 @@ impl Scorer {
                     tally.add(f as usize, kev, history);
                 }
             }
+            Scorer::VoxelDose(v) => v.deposit(region, pos, kev, history),
             _ => {}
         }
     }

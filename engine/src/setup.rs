@@ -268,7 +268,7 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
             let mut max_density = grid.max_density_by_material();
             max_density.resize(mats.tables.len(), 0.0);
             let majorant = crate::physics::majorant::Majorant::new(&mats.tables, &max_density);
-            let world = crate::transport::VoxelWorld { grid: std::sync::Arc::new(grid), majorant, labels: labels.map(std::sync::Arc::new) };
+            let world = crate::transport::VoxelWorld { tracking: Default::default(), grid: std::sync::Arc::new(grid), majorant, labels: labels.map(std::sync::Arc::new) };
             (Geometry::Voxels(Box::new(world)), Vec::new(), 0.0)
         }
     };

@@ -31,9 +31,49 @@ pub enum Geometry {
     Voxels(Box<VoxelWorld>),
 }
 
+/// How photons are tracked inside a voxel grid.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum VoxelTracking {
+    /// Woodcock (delta) tracking with the majorant: no voxel boundaries are computed.
+    #[default]
+    Woodcock,
+    /// Voxel-to-voxel stepping with exact boundary distances (slower; a cross-check).
+    Exact,
+}
+
+/// A geometry tracked boundary by boundary (slabs, or voxels stepped exactly).
+trait ExactGeometry {
+    fn step(&self, p: Vec3, d: Vec3, r: Region) -> dosemill_geometry::Boundary;
+    fn material_of(&self, r: Region) -> Option<(u16, f64)>;
+}
+
+impl ExactGeometry for SlabStack {
+    #[inline(always)]
+    fn step(&self, p: Vec3, d: Vec3, r: Region) -> dosemill_geometry::Boundary {
+        SlabStack::step(self, p, d, r)
+    }
+    #[inline(always)]
+    fn material_of(&self, r: Region) -> Option<(u16, f64)> {
+        SlabStack::material_of(self, r)
+    }
+}
+
+impl ExactGeometry for VoxelGrid {
+    #[inline(always)]
+    fn step(&self, p: Vec3, d: Vec3, r: Region) -> dosemill_geometry::Boundary {
+        VoxelGrid::step(self, p, d, r)
+    }
+    #[inline(always)]
+    fn material_of(&self, r: Region) -> Option<(u16, f64)> {
+        VoxelGrid::material_of(self, r)
+    }
+}
+
 /// A voxel grid with its tracking majorant and region labels.
 #[derive(Debug, Clone)]
 pub struct VoxelWorld {
+    /// Tracking method inside the grid.
+    pub tracking: VoxelTracking,
     /// The grid (shared with scorers that walk it).
     pub grid: std::sync::Arc<VoxelGrid>,
     /// μ_max(E) over the grid's materials at their largest densities.
@@ -229,25 +269,28 @@ impl Problem {
                 while depth > 0 {
                     depth -= 1;
                     let photon = stack[depth];
-                    self.track_slabs(slabs, photon, &mut rng, &mut ctx, &mut stack, &mut depth);
+                    self.track_exact(slabs, photon, &mut rng, &mut ctx, &mut stack, &mut depth);
                 }
             }
             Geometry::Voxels(world) => {
                 while depth > 0 {
                     depth -= 1;
                     let photon = stack[depth];
-                    self.track_voxels(world, photon, &mut rng, &mut ctx, &mut stack, &mut depth);
+                    match world.tracking {
+                        VoxelTracking::Woodcock => self.track_voxels(world, photon, &mut rng, &mut ctx, &mut stack, &mut depth),
+                        VoxelTracking::Exact => self.track_exact(&*world.grid, photon, &mut rng, &mut ctx, &mut stack, &mut depth),
+                    }
                 }
             }
         }
         ctx.outcome
     }
 
-    /// Follows one photon in a slab stack until it is absorbed or escapes.
+    /// Follows one photon region by region (exact boundaries) until it is absorbed or escapes.
     #[inline]
-    fn track_slabs(
+    fn track_exact<G: ExactGeometry>(
         &self,
-        slabs: &SlabStack,
+        slabs: &G,
         mut p: Photon,
         rng: &mut Stream,
         ctx: &mut Ctx,

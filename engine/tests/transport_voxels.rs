@@ -149,7 +149,7 @@ fn track_length_and_analog_agree() {
             assert!(z.abs() < 4.0, "voxel {i}: analog {} ± {}, track length {} ± {}", ma[i], sa[i], mb[i], sb[i]);
         }
     }
-    assert!(compared >= 10, "only {compared} voxels below 2 %");
+    assert!(compared >= 6, "only {compared} voxels below 2 %");
 }
 
 /// Uncollided transmission along a ray through the heterogeneous phantom equals exp(−∫μ ds)

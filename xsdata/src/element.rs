@@ -6,7 +6,7 @@
 //!
 //! # Where the numbers come from
 //! `xsdata/generate/make_tables.py` evaluates xraylib (version in [`crate::Provenance`]) and
-//! writes `xsdata/data/elements.bin`, embedded here with `include_bytes!`. The photoelectric cross
+//! writes `xsdata/data/elements.b7` (the binary tables in a text-safe 7-bit packing, see [`unpack7`]), embedded here with `include_bytes!`. The photoelectric cross
 //! section is xraylib's; the coherent and incoherent cross sections are integrals of the stored
 //! (clamped, interpolated) F and S, so that sampling angles from F and S is consistent with the
 //! cross sections used for path lengths.
@@ -44,8 +44,24 @@ use std::sync::OnceLock;
 use crate::provenance::Provenance;
 use crate::{E_MAX_KEV, E_MIN_KEV};
 
-/// The table file, embedded at build time.
-const TABLE_BYTES: &[u8] = include_bytes!("../data/elements.bin");
+/// The table file, embedded at build time in its text-safe 7-bit packing (see [`unpack7`]).
+const TABLE_PACKED: &[u8] = include_bytes!("../data/elements.b7");
+
+/// Undoes the generator's text-safe packing: each 8-byte block (high bits set, 7 payload bits
+/// each, most significant first) becomes 7 bytes; the stream starts with the table's length as
+/// 8 little-endian bytes. Returns `None` for a damaged stream.
+pub fn unpack7(packed: &[u8]) -> Option<Vec<u8>> {
+    if packed.len() % 8 != 0 || packed.iter().any(|b| b & 0x80 == 0) {
+        return None;
+    }
+    let mut stream = Vec::with_capacity(packed.len() / 8 * 7);
+    for block in packed.chunks_exact(8) {
+        let v = block.iter().fold(0u64, |acc, b| (acc << 7) | (b & 0x7F) as u64);
+        stream.extend_from_slice(&v.to_be_bytes()[1..]);
+    }
+    let len = u64::from_le_bytes(stream.get(..8)?.try_into().ok()?) as usize;
+    stream.get(8..8 + len).map(|d| d.to_vec())
+}
 /// Its provenance sidecar.
 const PROVENANCE_TOML: &str = include_str!("../data/provenance.toml");
 
@@ -698,9 +714,11 @@ impl<'a> Reader<'a> {
     }
 }
 
-/// The embedded table file (`xsdata/data/elements.bin`), for checks against its provenance.
+/// The embedded table file (`xsdata/data/elements.b7`, unpacked), for checks against its
+/// provenance.
 pub fn embedded_table_bytes() -> &'static [u8] {
-    TABLE_BYTES
+    static BYTES: OnceLock<Vec<u8>> = OnceLock::new();
+    BYTES.get_or_init(|| unpack7(TABLE_PACKED).expect("embedded xsdata/data/elements.b7 is damaged"))
 }
 
 /// The embedded element tables (parsed on first use, then shared).
@@ -721,6 +739,6 @@ pub fn elements() -> &'static ElementTable {
     TABLE.get_or_init(|| {
         let provenance = Provenance::from_toml_str(PROVENANCE_TOML)
             .unwrap_or_else(|e| panic!("embedded xsdata/data/provenance.toml: {e}"));
-        ElementTable::parse(TABLE_BYTES, provenance).unwrap_or_else(|e| panic!("embedded xsdata/data/elements.bin: {e}"))
+        ElementTable::parse(embedded_table_bytes(), provenance).unwrap_or_else(|e| panic!("embedded xsdata/data/elements.bin: {e}"))
     })
 }

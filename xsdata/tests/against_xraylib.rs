@@ -172,14 +172,14 @@ fn fluorescence_data_sanity() {
 
 // Source: xraydb.mu_chantler (Chantler's tables, a compilation independent of xraylib's), every
 // element it covers (Z = 1–92) on 25 energies 10–500 keV, at least 1 % from any edge.
-// Criterion: within 7 %.
-//
-// Known to fail at 13 of the 2284 points (largest +8.9 %, Mg at 500 keV): H and He at 20–40 keV
-// (Chantler's scattering part exceeds the free-electron Klein–Nishina value by 8–11 %), He, Mg and
-// U at 250–500 keV and Rb at 13.9 keV, where xraylib's own CS_Total differs from Chantler by as
-// much. Run with `cargo test -p dosemill-xsdata -- --ignored` to see the list.
+// Criterion: within 7 % of Chantler at every point, except where the source library itself
+// (xraylib's CS_Total) differs from Chantler by more than 7 %: there the two compilations
+// disagree and our tables cannot be closer to Chantler than their source; at those points our
+// total must stay within 2 % of CS_Total, and they are listed. Measured: 13 of 2284 points are
+// such disagreements (H and He at 20–40 keV, where Chantler's scattering exceeds the
+// free-electron Klein–Nishina value by 8–11 %; He, Mg and U at 250–500 keV; Rb at 13.9 keV);
+// largest deviation from Chantler +8.9 % (Mg, 500 keV).
 #[test]
-#[ignore = "xraylib and Chantler differ by more than 7 % at 13 of 2284 points; see comment"]
 fn total_vs_chantler_tables() {
     if !python_has("xraylib") || !python_has("xraydb") {
         return;
@@ -199,18 +199,26 @@ fn total_vs_chantler_tables() {
     let answers = reference("chantler", &input);
     let mut worst = (0.0f64, 0u32, 0.0f64);
     let mut over = Vec::new();
+    let mut disagreements = Vec::new();
     for (&(z, kev), line) in points.iter().zip(&answers) {
-        let want: f64 = line.parse().unwrap();
+        let mut cols = line.split_whitespace().map(|v| v.parse::<f64>().unwrap());
+        let (want, source_total) = (cols.next().unwrap(), cols.next().unwrap());
         assert!(want.is_finite(), "Chantler value missing for Z={z} at {kev} keV");
-        let d = rel(t.get(z).unwrap().total_cm2_g(kev), want);
+        let ours = t.get(z).unwrap().total_cm2_g(kev);
+        let d = rel(ours, want);
         if d.abs() > 0.07 {
-            over.push(format!("Z={z} {kev:.1} keV {:+.2} %", 100.0 * d));
+            if rel(source_total, want).abs() > 0.07 && rel(ours, source_total).abs() < 0.02 {
+                disagreements.push(format!("Z={z} {kev:.1} keV {:+.2} % (xraylib {:+.2} %)", 100.0 * d, 100.0 * rel(source_total, want)));
+            } else {
+                over.push(format!("Z={z} {kev:.1} keV {:+.2} %", 100.0 * d));
+            }
         }
         if d.abs() > worst.0.abs() {
             worst = (d, z, kev);
         }
     }
     println!("{} points; largest deviation from Chantler: {:+.2} % (Z={}, {:.1} keV)", points.len(), 100.0 * worst.0, worst.1, worst.2);
-    println!("beyond 7 %: {}", over.join("; "));
+    println!("compilations disagree (xraylib also beyond 7 %): {}", disagreements.join("; "));
+    println!("beyond 7 % otherwise: {}", over.join("; "));
     assert!(over.is_empty(), "{} points beyond 7 % from Chantler: {}", over.len(), over.join("; "));
 }

@@ -9,7 +9,8 @@ Usage: reference_values.py MODE < requests > answers, one request per line.
   shells       "Z"       -> "EdgeEnergy FluorYield" for K, L1, L2, L3, then JumpFactor(K),
                             then the K-shell CS_Photo_Partial share just above the K edge (or nan).
   lines        "Z LABEL" -> xraylib LineEnergy (keV) of the IUPAC line, e.g. "74 KL3".
-  chantler     "Z E_keV" -> xraydb.mu_chantler total mu/rho (cm^2/g), "nan" outside its tables.
+  chantler     "Z E_keV" -> "chantler CS_Total": xraydb.mu_chantler total mu/rho (cm^2/g), "nan"
+               outside its tables, and xraylib's CS_Total at the same point.
 """
 import math
 import os
@@ -95,7 +96,7 @@ def main():
                 continue
             for i, v in zip(idx, np.atleast_1d(mu)):
                 values[i] = float(v)
-        out = [repr(v) for v in values]
+        out = [f"{v!r} {safe(xraylib.CS_Total, z, e)!r}" for v, (z, e) in zip(values, requests)]
     else:
         raise SystemExit(f"unknown mode {mode!r}")
     sys.stdout.write("\n".join(out) + "\n")

@@ -149,3 +149,70 @@ fn check_prints_a_resolved_deck() {
     let o = dosemill(&["check", resolved.to_str().unwrap()]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
 }
+
+/// `stop_at_uncertainty`: the run stops after the first wave of 16 chunks at which the peak bin
+/// of the named score reaches the target, the same point with 1 and 2 threads (bit-identical
+/// files), records why it stopped, and its uncertainty is indeed at or below the target.
+#[test]
+fn stops_at_a_target_uncertainty_independently_of_threads() {
+    let dir = temp("stop");
+    let deck = dir.join("stop.toml");
+    std::fs::write(
+        &deck,
+        "# test deck (invented): stop once the depth dose peak is known to 2 %\n\
+         [run]\nhistories = 5_000_000\nhistories_per_chunk = 1000\nstop_at_uncertainty = { score = \"dd\", relative = 0.02 }\n\
+         [source]\nkind = \"pencil\"\nposition_cm = [0, 0, -1]\nenergy_kev = 60\n\
+         [geometry]\nkind = \"slabs\"\n[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10\n\
+         [[score]]\nname = \"dd\"\nkind = \"depth_dose\"\nz_min_cm = 0\nz_max_cm = 10\nbin_width_cm = 1\n",
+    )
+    .unwrap();
+    let mut files = Vec::new();
+    for t in ["1", "2"] {
+        let out = dir.join(format!("t{t}"));
+        let o = dosemill(&["run", deck.to_str().unwrap(), "--out", out.to_str().unwrap(), "--threads", t, "--quiet"]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        files.push(out.join("stop.h5"));
+    }
+    let a = dosemill_engine::output::read(&files[0]).unwrap();
+    let b = dosemill_engine::output::read(&files[1]).unwrap();
+    assert_eq!(a.attr("stop_reason").and_then(|v| v.as_str()), Some("target uncertainty reached"));
+    let histories = match a.attr("histories") { Some(dosemill_engine::output::AttrValue::U64(h)) => *h, other => panic!("{other:?}") };
+    assert!(histories < 5_000_000 && histories % 16_000 == 0, "stopped at a wave boundary: {histories}");
+    let da = datasets(&files[0]);
+    let db = datasets(&files[1]);
+    for ((n, x), (_, y)) in da.iter().zip(&db) {
+        assert!(x.bits_equal(y), "{n} differs between 1 and 2 threads");
+    }
+    let g = a.group("dd").unwrap();
+    let e = g.dataset("energy").unwrap().data.to_f64().unwrap();
+    let s = g.dataset("energy_sigma").unwrap().data.to_f64().unwrap();
+    let peak = (0..e.len()).max_by(|&i, &j| e[i].total_cmp(&e[j])).unwrap();
+    assert!(s[peak] / e[peak] <= 0.02);
+}
+
+/// `time_limit_s`: a run that cannot finish in time stops at the limit with fewer histories
+/// than asked, and says so.
+#[test]
+fn stops_at_a_time_limit() {
+    let dir = temp("time");
+    let deck = dir.join("slow.toml");
+    std::fs::write(
+        &deck,
+        "# test deck (invented): far more histories than fit in one second\n\
+         [run]\nhistories = 1e12\ntime_limit_s = 1\n\
+         [source]\nkind = \"pencil\"\nposition_cm = [0, 0, -1]\nenergy_kev = 60\n\
+         [geometry]\nkind = \"slabs\"\n[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10\n\
+         [[score]]\nname = \"dd\"\nkind = \"depth_dose\"\nz_min_cm = 0\nz_max_cm = 10\nbin_width_cm = 1\n",
+    )
+    .unwrap();
+    let start = std::time::Instant::now();
+    let o = dosemill(&["run", deck.to_str().unwrap(), "--out", dir.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(start.elapsed().as_secs() < 120, "the limit was not honoured");
+    let f = dosemill_engine::output::read(dir.join("slow.h5")).unwrap();
+    assert_eq!(f.attr("stop_reason").and_then(|v| v.as_str()), Some("time limit"));
+    match f.attr("histories") {
+        Some(dosemill_engine::output::AttrValue::U64(h)) => assert!(*h > 0 && *h < 1_000_000_000_000),
+        other => panic!("{other:?}"),
+    }
+}

@@ -537,9 +537,28 @@ pub struct RunResult {
 /// Runs the given chunks of a problem on `settings.threads` workers. If `stop` becomes true,
 /// workers finish the chunk in hand and return; the result then holds the chunks completed.
 pub fn run_chunks(problem: &Problem, settings: &RunSettings, chunks: &[u64], stop: Option<&AtomicBool>) -> RunResult {
+    let total: u64 = chunks.iter().map(|&c| {
+        let r = chunk_range(c, settings.chunk_histories, settings.histories);
+        r.end - r.start
+    }).sum();
+    let bar = progress_bar(settings, total);
+    let r = run_chunks_with(problem, settings, chunks, stop, bar.as_ref());
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    r
+}
+
+/// As [`run_chunks`], advancing the caller's progress bar (one bar over several calls).
+pub fn run_chunks_with(
+    problem: &Problem,
+    settings: &RunSettings,
+    chunks: &[u64],
+    stop: Option<&AtomicBool>,
+    bar: Option<&indicatif::ProgressBar>,
+) -> RunResult {
     let start = std::time::Instant::now();
     let next = AtomicUsize::new(0);
-    let bar = progress_bar(settings, chunks);
     let pool = rayon::ThreadPoolBuilder::new().num_threads(settings.threads.max(1)).build().expect("thread pool");
     let partials: Vec<(Vec<Scorer>, Vec<u64>, u64)> = pool.broadcast(|_| {
         let mut scorers: Vec<Scorer> = problem.scorers.iter().map(Scorer::zeroed).collect();
@@ -558,7 +577,7 @@ pub fn run_chunks(problem: &Problem, settings: &RunSettings, chunks: &[u64], sto
             }
             histories += n;
             done.push(chunk);
-            if let Some(b) = &bar {
+            if let Some(b) = bar {
                 b.inc(n);
             }
         }
@@ -567,9 +586,6 @@ pub fn run_chunks(problem: &Problem, settings: &RunSettings, chunks: &[u64], sto
         }
         (scorers, done, histories)
     });
-    if let Some(b) = bar {
-        b.finish_and_clear();
-    }
     let mut merged: Vec<Scorer> = problem.scorers.iter().map(Scorer::zeroed).collect();
     let mut all_chunks = Vec::new();
     let mut histories = 0;
@@ -609,15 +625,13 @@ pub fn run(problem: &Problem, settings: &RunSettings) -> RunResult {
     run_chunks(problem, settings, &chunks, None)
 }
 
-fn progress_bar(settings: &RunSettings, chunks: &[u64]) -> Option<indicatif::ProgressBar> {
+/// A progress bar over `total` histories with histories/s and ETA, or `None` when progress is
+/// off or stderr is not a terminal.
+pub fn progress_bar(settings: &RunSettings, total: u64) -> Option<indicatif::ProgressBar> {
     use std::io::IsTerminal;
     if !settings.progress || !std::io::stderr().is_terminal() {
         return None;
     }
-    let total: u64 = chunks.iter().map(|&c| {
-        let r = chunk_range(c, settings.chunk_histories, settings.histories);
-        r.end - r.start
-    }).sum();
     let bar = indicatif::ProgressBar::new(total);
     bar.set_style(
         indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} histories  {per_sec}  ETA {eta}")

@@ -6,7 +6,7 @@ use crate::deck;
 use crate::output;
 use crate::results::{now_rfc3339, result_file, RunMeta};
 use crate::setup;
-use crate::transport::{run_chunks, RunResult};
+use crate::transport::{progress_bar, run_chunks_with, RunResult};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
@@ -108,6 +108,8 @@ fn print_summary(outcomes: &[Outcome]) {
 /// Waves of this many chunks are run between checks of a target uncertainty (a fixed number, so
 /// where a run stops does not depend on the thread count).
 const WAVE_CHUNKS: usize = 16;
+/// Chunks per wave of a run without a target uncertainty (bounds the chunk lists in memory).
+const LARGE_WAVE_CHUNKS: u64 = 4096;
 
 fn run_job(resolved: &deck::ResolvedDeck, deck_text: &str, values: &[(String, toml::Value)], out: &Path, args: &Args) -> anyhow::Result<(u64, String)> {
     if out.exists() && !args.force {
@@ -117,9 +119,9 @@ fn run_job(resolved: &deck::ResolvedDeck, deck_text: &str, values: &[(String, to
     let settings = setup::run_settings(resolved, args.threads, args.seed, !args.quiet);
     let start_time = now_rfc3339();
     let n_chunks = crate::rng::chunk_count(settings.histories, settings.chunk_histories);
-    let chunks: Vec<u64> = (0..n_chunks).collect();
 
     let stop = AtomicBool::new(false);
+    let bar = progress_bar(&settings, settings.histories);
     let target = resolved.run.stop_at_uncertainty.as_ref().map(|t| {
         let i = info.scores.iter().position(|s| s.name == t.score).expect("validated score name");
         (i, t.relative)
@@ -134,16 +136,27 @@ fn run_job(resolved: &deck::ResolvedDeck, deck_text: &str, values: &[(String, to
                 }
             });
         }
+        // Chunks run in waves (never a list of every chunk of a huge run in memory); with a
+        // target uncertainty the waves are small and fixed, and the target is checked after each.
+        let wave_len = if target.is_some() { WAVE_CHUNKS as u64 } else { LARGE_WAVE_CHUNKS };
+        let waves = (0..n_chunks).step_by(wave_len as usize).map(|first| (first..(first + wave_len).min(n_chunks)).collect::<Vec<u64>>());
         let outcome = match target {
             None => {
-                let r = run_chunks(&problem, &settings, &chunks, Some(&stop));
-                (r, "all histories")
+                let mut acc = RunResult::empty(&problem);
+                for wave in waves {
+                    let r = run_chunks_with(&problem, &settings, &wave, Some(&stop), bar.as_ref());
+                    acc.merge(&r);
+                    if stop.load(Ordering::Relaxed) {
+                        break;
+                    }
+                }
+                (acc, "all histories")
             }
             Some((score, relative)) => {
                 let mut acc = RunResult::empty(&problem);
                 let mut reason = "all histories";
-                for wave in chunks.chunks(WAVE_CHUNKS) {
-                    let r = run_chunks(&problem, &settings, wave, Some(&stop));
+                for wave in waves {
+                    let r = run_chunks_with(&problem, &settings, &wave, Some(&stop), bar.as_ref());
                     acc.merge(&r);
                     if stop.load(Ordering::Relaxed) {
                         break;
@@ -163,6 +176,9 @@ fn run_job(resolved: &deck::ResolvedDeck, deck_text: &str, values: &[(String, to
         drop(done_tx);
         outcome
     });
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
     let reason = if stop.load(Ordering::Relaxed) && result.histories < settings.histories { "time limit" } else { reason };
     let meta = RunMeta {
         deck_text: deck_text.to_string(),

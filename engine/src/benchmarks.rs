@@ -33,3 +33,52 @@ pub fn p1(extra: Vec<Scorer>) -> Problem {
     scorers.extend(extra);
     Problem { materials: vec![water], geometry: Geometry::Slabs(stack), source, options, scorers }
 }
+
+/// P3: a 256³ voxel phantom (0.1 cm voxels: a soft-tissue cylinder with lung and bone inserts in
+/// air, demo geometry), an 80 kV tube beam from a point source at 100 cm with a 20 × 20 cm field,
+/// analog dose on a 64³ scoring grid (blocks of 4³ voxels).
+pub fn p3() -> Result<Problem, String> {
+    use crate::physics::majorant::Majorant;
+    use crate::score::voxel_dose::{DoseEstimator, VoxelDose};
+    use crate::transport::{VoxelTracking, VoxelWorld};
+    use dosemill_geometry::phantom::{build_phantom, PhantomPart, PhantomSpec, Shape};
+    use std::sync::Arc;
+    let options = PhysicsOptions::default();
+    let names = ["air", "soft_tissue", "lung", "cortical_bone"];
+    let lib: Vec<_> = names.iter().map(|n| dosemill_xsdata::library::lookup(n).map_err(|e| e.to_string())).collect::<Result<_, _>>()?;
+    let tables: Vec<MaterialXs> = lib.iter().map(|m| MaterialXs::new(m.name(), m.density_g_cm3(), m.composition(), &options).map_err(|e| e.to_string())).collect::<Result<_, _>>()?;
+    let part = |shape, material, region: &str| PhantomPart { shape, material, region: Some(region.to_string()) };
+    let spec = PhantomSpec {
+        dims: [256, 256, 256],
+        voxel_size_cm: [0.1, 0.1, 0.1],
+        origin_cm: [-12.8, -12.8, 0.0],
+        materials: names.iter().map(|s| s.to_string()).collect(),
+        background_material: 0,
+        parts: vec![
+            part(Shape::Cylinder { center_cm: [0.0, 0.0, 12.8], axis: [0.0, 1.0, 0.0], radius_cm: 12.0, length_cm: 25.6 }, 1, "body"),
+            part(Shape::Ellipsoid { center_cm: [-5.0, 0.0, 11.0], semi_axes_cm: [3.5, 8.0, 5.0] }, 2, "lung_a"),
+            part(Shape::Ellipsoid { center_cm: [5.0, 0.0, 11.0], semi_axes_cm: [3.5, 8.0, 5.0] }, 2, "lung_b"),
+            part(Shape::Box { center_cm: [0.0, 0.0, 20.0], half_size_cm: [1.2, 12.0, 1.2] }, 3, "spine"),
+        ],
+        supersample: 1,
+    };
+    let ph = build_phantom(&spec).map_err(|e| e.to_string())?;
+    let mut grid = ph.grid;
+    grid.set_nominal_densities(&lib.iter().map(|m| m.density_g_cm3()).collect::<Vec<_>>()).map_err(|e| e.to_string())?;
+    let b = grid.bounds();
+    let bounds = dosemill_geometry::Aabb::new(Vec3::new(b.min_cm.x - 1.0, b.min_cm.y - 1.0, -101.0), b.max_cm + Vec3::new(1.0, 1.0, 1.0));
+    let grid = grid.with_world(dosemill_geometry::World { medium: Some(dosemill_geometry::Medium::new(0, lib[0].density_g_cm3())), bounds }).map_err(|e| e.to_string())?;
+    let majorant = Majorant::new(&tables, &grid.max_density_by_material());
+    let grid = Arc::new(grid);
+    let tube = crate::spectrum::Tube::new(80.0, crate::spectrum::Anode::W).with_filter("Al", 2.5);
+    let s = crate::spectrum::compute_spectrum(&tube, &crate::spectrum::SpectrumOptions::default()).map_err(|e| e.to_string())?;
+    let t = s.to_sampling_table();
+    let alias = crate::source::AliasTable::new(&t.weights).ok_or("empty spectrum")?;
+    let source = Source::new(
+        Emission::Point { origin_cm: Vec3::new(0.0, 0.0, -100.0), direction: Vec3::new(0.0, 0.0, 1.0), field: crate::source::Field::Rectangle { width_cm: 20.0, height_cm: 20.0 }, field_distance_cm: 100.0 },
+        EnergySpectrum::Ranges { lo_kev: t.lo_kev, hi_kev: t.hi_kev, table: alias },
+    );
+    let dose = Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::Analog, grid.clone(), [4, 4, 4], Some(Arc::new((ph.labels, ph.label_names))), Arc::new(lib))));
+    let world = VoxelWorld { tracking: VoxelTracking::Woodcock, grid, majorant, labels: None };
+    Ok(Problem { materials: tables, geometry: Geometry::Voxels(Box::new(world)), source, options, scorers: vec![dose] })
+}

@@ -24,11 +24,15 @@ fn scratch(tag: &str) -> PathBuf {
 /// A demo deck (invented scenario): 60 keV pencil beam on water with an Al backing, enough
 /// chunks that a kill lands mid-run.
 fn write_deck(dir: &Path, histories: u64, seed: u64) -> PathBuf {
+    write_deck_chunked(dir, histories, 2000, seed)
+}
+
+fn write_deck_chunked(dir: &Path, histories: u64, chunk: u64, seed: u64) -> PathBuf {
     let text = format!(
         r#"# Demo deck (invented scenario) for checkpoint tests.
 [run]
 histories = {histories}
-histories_per_chunk = 2000
+histories_per_chunk = {chunk}
 seed = {seed}
 output = "w.h5"
 
@@ -253,4 +257,32 @@ fn full_disk_keeps_the_previous_result_and_the_last_checkpoint() {
     let o = dosemill(&["resume", ckpt.to_str().unwrap(), "--quiet"]);
     assert!(o.status.success(), "{}", text(&o));
     assert_eq!(root_str(&result, "completion"), "complete");
+}
+
+#[test]
+fn second_signal_exits_at_once_and_the_last_checkpoint_still_resumes() {
+    let dir = scratch("twice");
+    // Large chunks (0.1 s or more each), so the second signal lands while chunks are in hand.
+    let deck = write_deck_chunked(&dir, 12_000_000, 400_000, 8);
+    let out = dir.join("run");
+    let ckpt = out.join("w.h5.ckpt");
+    let mut child = Command::new(BIN)
+        .args(["run", deck.to_str().unwrap(), "--quiet", "--threads", "2", "--out", out.to_str().unwrap(), "--checkpoint-every-chunks", "16"])
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    assert!(wait_for(&ckpt, Duration::from_secs(120)), "no checkpoint appeared");
+    let pid = child.id().to_string();
+    // A second signal while the chunks in hand are still running ends the process at once. The
+    // pause only keeps the kernel from folding the two signals into one.
+    let k = Command::new("sh").args(["-c", &format!("kill -INT {pid}; sleep 0.05; kill -INT {pid}")]).status().unwrap();
+    assert!(k.success());
+    let status = child.wait().unwrap();
+    assert_eq!(status.code(), Some(4), "second signal exits with 4");
+    assert!(!out.join("w.h5").exists(), "no result written after an immediate exit");
+    let o = dosemill(&["resume", ckpt.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", text(&o));
+    let reference = reference(&dir, &deck);
+    assert!(groups(&out.join("w.h5")).bits_equal(&groups(&reference)));
 }

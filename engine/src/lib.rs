@@ -10,6 +10,7 @@ pub mod output;
 pub mod physics;
 pub mod report;
 pub mod rng;
+pub mod runstate;
 pub mod raytrace;
 pub mod results;
 pub mod score;

@@ -1,6 +1,8 @@
 //! Command-line interface: one module per subcommand; each owns its clap `Args` and a `run`.
 //!
-//! Exit codes: 0 success, 1 a run or check failed, 2 bad input (usage, deck, values).
+//! Exit codes: 0 success, 1 a run or check failed, 2 bad input (usage, deck, values),
+//! 3 run interrupted (checkpoint and partial result written), 4 aborted by a second signal,
+//! 5 run refused: it would exceed the memory or disk limit.
 
 use clap::{Parser, Subcommand};
 
@@ -9,6 +11,8 @@ pub mod bench;
 pub mod check;
 pub mod run;
 pub mod materials;
+pub mod merge;
+pub mod resume;
 pub mod report;
 pub mod spectrum;
 
@@ -28,6 +32,10 @@ struct Cli {
 enum Command {
     /// Run decks (batch); every sweep combination is its own job.
     Run(run::Args),
+    /// Continue an interrupted run from its checkpoint.
+    Resume(resume::Args),
+    /// Merge the shard files of one run into one result file.
+    Merge(merge::Args),
     /// Validate decks and print them resolved, without running.
     Check(check::Args),
     /// List the built-in materials library.
@@ -44,6 +52,7 @@ enum Command {
 
 /// Parse the command line and run; returns the process exit code.
 pub fn main() -> i32 {
+    run::quiet_on_closed_pipe();
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {
@@ -54,6 +63,8 @@ pub fn main() -> i32 {
     };
     let result = match cli.command {
         Command::Run(a) => run::run(a),
+        Command::Resume(a) => resume::run(a),
+        Command::Merge(a) => merge::run(a),
         Command::Check(a) => check::run(a),
         Command::Materials(a) => materials::run(a),
         Command::Attenuation(a) => attenuation::run(a),

@@ -5,6 +5,7 @@
 //! Every score is a mean per incident history with its standard error (1σ). Energy deposited is
 //! kerma-approximation energy: what the photon gives to electrons is counted where it happens.
 
+pub mod axial;
 pub mod tally;
 
 pub use tally::Tally;
@@ -137,6 +138,8 @@ pub enum Scorer {
         /// `3·bins..4·bins` all of them (photons per history).
         tally: Tally,
     },
+    /// Collision kerma of chosen media on on-axis discs of planes normal to z (keV/g per history).
+    PlaneKerma(axial::PlaneKerma),
 }
 
 impl Scorer {
@@ -173,7 +176,8 @@ impl Scorer {
             | Scorer::Escape { tally }
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
-            | Scorer::AirKerma { tally, .. } => tally,
+            | Scorer::AirKerma { tally, .. }
+            | Scorer::PlaneKerma(axial::PlaneKerma { tally, .. }) => tally,
         }
     }
 
@@ -185,7 +189,8 @@ impl Scorer {
             | Scorer::Escape { tally }
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
-            | Scorer::AirKerma { tally, .. } => tally,
+            | Scorer::AirKerma { tally, .. }
+            | Scorer::PlaneKerma(axial::PlaneKerma { tally, .. }) => tally,
         }
     }
 
@@ -202,12 +207,15 @@ impl Scorer {
 
     /// True for scorers that need every flight segment ([`Scorer::segment`]).
     pub fn wants_segments(&self) -> bool {
-        matches!(self, Scorer::AirKerma { .. })
+        matches!(self, Scorer::AirKerma { .. } | Scorer::PlaneKerma(_))
     }
 
     /// A straight flight of `photon` from its position over `length_cm` (through any medium).
     #[inline]
     pub fn segment(&mut self, photon: &PhotonView, length_cm: f64, history: u64) {
+        if let Scorer::PlaneKerma(p) = self {
+            return p.segment(photon, length_cm, history);
+        }
         if let Scorer::AirKerma { axis, center_cm, radius_cm, air, tally } = self {
             let a = *axis;
             let plane = center_cm.axis(a);

@@ -17,7 +17,7 @@ pub struct Args {
     /// Histories of each phantom run (free-in-air runs get twice as many).
     #[arg(long)]
     pub histories: Option<u64>,
-    /// Fewer histories (20 000 per phantom run) for a fast look.
+    /// Fewer histories (100 000 per phantom run) for a fast look.
     #[arg(long)]
     pub quick: bool,
     /// Run seed.
@@ -32,9 +32,9 @@ pub struct Args {
 }
 
 /// Histories of each phantom run by default.
-pub const DEFAULT_HISTORIES: u64 = 200_000;
+pub const DEFAULT_HISTORIES: u64 = 1_000_000;
 /// Histories of each phantom run with `--quick`.
-pub const QUICK_HISTORIES: u64 = 20_000;
+pub const QUICK_HISTORIES: u64 = 100_000;
 
 /// Runs the command; returns the exit code.
 pub fn run(args: Args) -> anyhow::Result<i32> {

@@ -251,9 +251,9 @@ pub fn evaluate_exam(e: &Exam, plan: &RunPlan) -> Result<ExamResult, EvalError> 
     })
 }
 
-/// Radius of the on-axis scoring discs for a field (cm): a fifth of the shorter side, 0.1–2 cm.
+/// Radius of the on-axis scoring discs for a field (cm): a fifth of the shorter side, 0.1–4 cm.
 pub fn disc_radius_cm(field_cm: [f64; 2]) -> f64 {
-    (0.2 * field_cm[0].min(field_cm[1])).clamp(0.1, 2.0)
+    (0.2 * field_cm[0].min(field_cm[1])).clamp(0.1, 4.0)
 }
 
 /// Evaluates every exam of a protocol in file order.
@@ -266,7 +266,7 @@ pub const LIMITS: [&str; 5] = [
     "Kerma approximation: secondary electrons deposit their energy where they are set in motion; doses are collision kerma. Near interfaces and for the first millimetre below the surface this differs from absorbed dose.",
     "Patient model: a homogeneous slab of one library material with flat entrance surface, in vacuum; no table, couch, grid, detector or anatomy. Voxel phantoms and detectors are not evaluated by this version.",
     "Tube output normalisation: incident air kerma is the tube model's air kerma per mAs at 1 m (air path 1 m) scaled by mAs and the inverse square law; air attenuation between 1 m and the skin, heel effect, off-axis variation and the real tube's output calibration are not modelled. Measured output should replace it where available.",
-    "Entrance figures are scored on a disc on the central axis (radius a fifth of the shorter field side, at most 2 cm); the backscatter factor is its average over the disc.",
+    "Entrance figures are scored on a disc on the central axis (radius a fifth of the shorter field side, at most 4 cm); the backscatter factor is its average over the disc, slightly below the value at the centre point.",
     "Uncertainties are 1σ Monte Carlo statistics only; the analytic figures (incident air kerma) carry no statistical uncertainty, and model uncertainties (spectrum model, interaction data) are not included.",
 ];
 

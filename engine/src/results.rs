@@ -190,6 +190,11 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
                 g
             }
             (Scorer::VoxelDose(v), _) => voxel_dose_group(&si.name, v, mean, sigma),
+            (Scorer::PlaneKerma(_), _) => {
+                let mut g = Group::with_kind(&si.name, "plane_kerma");
+                pair(&mut g, "kerma", &[mean.len()], mean, sigma, "keV/g");
+                g
+            }
             (Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, .. }, _) => {
                 let mut g = Group::with_kind(&si.name, "spectrum");
                 let b = *bins;

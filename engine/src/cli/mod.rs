@@ -13,6 +13,8 @@ pub mod run;
 pub mod materials;
 pub mod merge;
 pub mod resume;
+pub mod protocol;
+pub mod validate;
 pub mod report;
 pub mod spectrum;
 
@@ -48,6 +50,10 @@ enum Command {
     Report(report::Args),
     /// Measure the speed of the reference problems.
     Bench(bench::Args),
+    /// Evaluate the exams of a protocol (doses, backscatter, depth dose) and write a report.
+    Protocol(protocol::Args),
+    /// Run the built-in validation cases against published and closed-form references.
+    Validate(validate::Args),
 }
 
 /// Parse the command line and run; returns the process exit code.
@@ -71,6 +77,8 @@ pub fn main() -> i32 {
         Command::Spectrum(a) => spectrum::run(a),
         Command::Report(a) => report::run(a),
         Command::Bench(a) => bench::run_bench(a),
+        Command::Protocol(a) => protocol::run(a),
+        Command::Validate(a) => validate::run(a),
     };
     match result {
         Ok(code) => code,

@@ -5,6 +5,7 @@
 //! Every score is a mean per incident history with its standard error (1σ). Energy deposited is
 //! kerma-approximation energy: what the photon gives to electrons is counted where it happens.
 
+pub mod axial;
 pub mod tally;
 pub mod voxel_dose;
 
@@ -140,6 +141,8 @@ pub enum Scorer {
         /// `3·bins..4·bins` all of them (photons per history).
         tally: Tally,
     },
+    /// Collision kerma of chosen media on on-axis discs of planes normal to z (keV/g per history).
+    PlaneKerma(axial::PlaneKerma),
 }
 
 impl Scorer {
@@ -176,7 +179,8 @@ impl Scorer {
             | Scorer::Escape { tally }
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
-            | Scorer::AirKerma { tally, .. } => tally,
+            | Scorer::AirKerma { tally, .. }
+            | Scorer::PlaneKerma(axial::PlaneKerma { tally, .. }) => tally,
             Scorer::VoxelDose(v) => &v.tally,
         }
     }
@@ -189,7 +193,8 @@ impl Scorer {
             | Scorer::Escape { tally }
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
-            | Scorer::AirKerma { tally, .. } => tally,
+            | Scorer::AirKerma { tally, .. }
+            | Scorer::PlaneKerma(axial::PlaneKerma { tally, .. }) => tally,
             Scorer::VoxelDose(v) => &mut v.tally,
         }
     }
@@ -208,7 +213,7 @@ impl Scorer {
     /// True for scorers that need every flight segment ([`Scorer::segment`]).
     pub fn wants_segments(&self) -> bool {
         match self {
-            Scorer::AirKerma { .. } => true,
+            Scorer::AirKerma { .. } | Scorer::PlaneKerma(_) => true,
             Scorer::VoxelDose(v) => v.estimator == voxel_dose::DoseEstimator::TrackLength,
             _ => false,
         }
@@ -220,6 +225,9 @@ impl Scorer {
         if let Scorer::VoxelDose(v) = self {
             v.segment(photon, length_cm, history);
             return;
+        }
+        if let Scorer::PlaneKerma(p) = self {
+            return p.segment(photon, length_cm, history);
         }
         if let Scorer::AirKerma { axis, center_cm, radius_cm, air, tally } = self {
             let a = *axis;

@@ -1,0 +1,104 @@
+//! Protocol files: the TOML and CSV forms of the demo protocol describe the same exams, and bad
+//! input gets an error naming file, line, column and key.
+
+use dosemill_engine::protocol::format::{parse_csv, parse_toml, Distance, Patient};
+use std::path::Path;
+use std::process::Command;
+
+fn root() -> &'static Path {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+}
+
+#[test]
+fn toml_and_csv_demo_protocols_agree() {
+    let t = std::fs::read_to_string(root().join("runs/protocol_demo.toml")).unwrap();
+    let c = std::fs::read_to_string(root().join("runs/protocol_demo.csv")).unwrap();
+    let a = parse_toml(&t, "protocol_demo.toml").unwrap();
+    let b = parse_csv(&c, "protocol_demo.csv").unwrap();
+    assert!(a.demo_data && b.demo_data, "demo protocols must be marked as invented demo data");
+    assert_eq!(a.title, b.title);
+    assert_eq!(a.exams.len(), 3);
+    assert_eq!(a.exams.len(), b.exams.len());
+    for (x, y) in a.exams.iter().zip(&b.exams) {
+        assert_eq!(x.name, y.name);
+        assert_eq!(x.kvp, y.kvp);
+        assert_eq!(x.filtration, y.filtration);
+        assert_eq!(x.mas, y.mas);
+        assert_eq!(x.distance, y.distance);
+        assert_eq!(x.field_cm, y.field_cm);
+        assert_eq!(x.patient.thickness_cm(), y.patient.thickness_cm());
+        assert_eq!(x.stated, y.stated);
+        assert_eq!(x.reference, y.reference);
+        assert_eq!(x.tolerance_percent, y.tolerance_percent);
+        assert_eq!(x.detector.as_ref().map(|d| &d.material), y.detector.as_ref().map(|d| &d.material));
+    }
+    // Focus–detector distance minus the patient thickness is the focus–skin distance.
+    assert_eq!(a.exams[1].distance, Distance::FocusDetector(180.0));
+    assert_eq!(a.exams[1].fsd_cm(), 158.0);
+    assert!(matches!(&a.exams[0].patient, Patient::Slab { material, .. } if material == "water"));
+}
+
+const GOOD: &str = r#"[protocol]
+title = "t"
+
+[[exam]]
+name = "a"
+kvp = 80
+mas = 10
+focus_skin_cm = 100
+field_cm = [20, 20]
+patient = { material = "water", thickness_cm = 15 }
+"#;
+
+#[test]
+fn toml_errors_name_line_column_and_key() {
+    assert!(parse_toml(GOOD, "p.toml").is_ok());
+    // Out-of-range value: the exam's line and the key.
+    let bad = GOOD.replace("kvp = 80", "kvp = 900");
+    let e = parse_toml(&bad, "p.toml").unwrap_err().to_string();
+    assert!(e.starts_with("p.toml:4:1: exam[0].kvp:"), "{e}");
+    assert!(e.contains("900") && e.contains("range"), "{e}");
+    // Unknown key: reported by the parser with its position.
+    let bad = GOOD.replace("mas = 10", "mAs = 10");
+    let err = parse_toml(&bad, "p.toml").unwrap_err();
+    assert_eq!(err.line, 7, "{err}");
+    assert!(err.to_string().contains("mAs"), "{err}");
+    // Unknown material with suggestions.
+    let bad = GOOD.replace("\"water\"", "\"watr\"");
+    let e = parse_toml(&bad, "p.toml").unwrap_err().to_string();
+    assert!(e.contains("exam[0].patient.material") && e.contains("water"), "{e}");
+    // Both distances.
+    let bad = GOOD.replace("focus_skin_cm = 100", "focus_skin_cm = 100\nfocus_detector_cm = 120");
+    assert!(parse_toml(&bad, "p.toml").unwrap_err().to_string().contains("not both"));
+    // Duplicate names.
+    let two = format!("{GOOD}\n[[exam]]\nname = \"a\"\nkvp = 70\nmas = 5\nfocus_skin_cm = 100\nfield_cm = [20, 20]\npatient = {{ thickness_cm = 10 }}\n");
+    let e = parse_toml(&two, "p.toml").unwrap_err().to_string();
+    assert!(e.contains("already used on line 4"), "{e}");
+}
+
+#[test]
+fn csv_errors_name_line_column_and_key() {
+    let head = "name,kvp,mas,focus_skin_cm,field_width_cm,field_height_cm,patient_thickness_cm\n";
+    assert!(parse_csv(&format!("{head}a,80,10,100,20,20,15\n"), "p.csv").is_ok());
+    let e = parse_csv(&format!("{head}a,eighty,10,100,20,20,15\n"), "p.csv").unwrap_err();
+    assert_eq!((e.line, e.column, e.key.as_str()), (2, 3, "kvp"), "{e}");
+    let e = parse_csv(&format!("{head}a,80,10,100,20,20\n"), "p.csv").unwrap_err();
+    assert!(e.to_string().starts_with("p.csv:2:1: row:"), "{e}");
+    let e = parse_csv("name,kvp,colour\n", "p.csv").unwrap_err();
+    assert_eq!((e.line, e.column, e.key.as_str()), (1, 10, "colour"), "{e}");
+    let e = parse_csv(&format!("{head}a,80,10,100,20,20,99\n"), "p.csv").unwrap_err();
+    assert_eq!(e.key, "patient.thickness_cm", "{e}");
+}
+
+#[test]
+fn binary_exits_2_on_a_bad_protocol() {
+    let dir = std::env::temp_dir().join(format!("dosemill-protocol-bad-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let p = dir.join("bad.toml");
+    std::fs::write(&p, GOOD.replace("kvp = 80", "kvp = -1")).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_dosemill")).arg("protocol").arg(&p).arg("--out").arg(dir.join("out")).output().unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("bad.toml:4:1: exam[0].kvp"), "{err}");
+    assert!(!dir.join("out").exists(), "nothing is written for a bad protocol");
+}

@@ -184,7 +184,8 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
                 g.set_attr("normal_axis", ["x", "y", "z"][*axis]);
                 g.add_dataset(Dataset::f64_1d("center", vec![center_cm.x, center_cm.y, center_cm.z], "cm"));
                 g.set_attr("radius_cm", *radius_cm);
-                pair(&mut g, "kerma", &[3], mean[..3].to_vec(), sigma[..3].to_vec(), "Gy");
+                let gy = JOULE_PER_KEV * 1e3; // keV/g → Gy
+                pair(&mut g, "kerma", &[3], mean[..3].iter().map(|v| v * gy).collect(), sigma[..3].iter().map(|v| v * gy).collect(), "Gy");
                 pair(&mut g, "fluence", &[3], mean[3..].to_vec(), sigma[3..].to_vec(), "1/cm2");
                 g.set_attr("normalisation", "air kerma (Gy) and planar photon fluence (1/cm2) per source history from photons crossing the disc, by direction; mu_en/rho of dry air from the project's tables");
                 g

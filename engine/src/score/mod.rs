@@ -119,7 +119,7 @@ pub enum Scorer {
         radius_cm: f64,
         /// Air, for μen/ρ.
         air: std::sync::Arc<dosemill_xsdata::material::Material>,
-        /// Bins (per history): kerma total, towards +axis, towards −axis (Gy); planar photon
+        /// Bins (per history): kerma total, towards +axis, towards −axis (keV/g); planar photon
         /// fluence total, towards +axis, towards −axis (1/cm²).
         tally: Tally,
     },
@@ -244,7 +244,9 @@ impl Scorer {
                     let area = std::f64::consts::PI * *radius_cm * *radius_cm;
                     let fluence = photon.weight / (area * d.abs().max(MIN_COS));
                     let muen = air.absorption_table().map(|t| t.muen_rho_cm2_g(photon.kev)).unwrap_or(0.0);
-                    let kerma = fluence * photon.kev * muen * JOULE_PER_KEV * 1e3;
+                    // keV/g here (per-history values of order 0.1): the tally's fixed point resolves
+                    // them and their squares; the result writer converts to Gy.
+                    let kerma = fluence * photon.kev * muen;
                     let dir_bin = if d > 0.0 { 1 } else { 2 };
                     tally.add(0, kerma, history);
                     tally.add(dir_bin, kerma, history);

@@ -10,7 +10,9 @@
 //! associative, so partial tallies from any number of workers, checkpoints or shards merge to the
 //! same bits in any order: a run's result is bitwise independent of the thread count and of how
 //! it was split. Per-history values are rounded to 2⁻⁵⁰ ≈ 8.9e-16 of the score's unit; sums hold
-//! up to 2⁷⁸ ≈ 3e23 units.
+//! up to 2⁷⁸ ≈ 3e23 units. Scorers therefore tally in units where a history's value is not tiny
+//! (keV, keV/g, photons, 1/cm²; not Gy) so that the squares are resolved, and convert units when
+//! results are written.
 
 /// Fractional bits of the fixed-point sums.
 pub const FRACTION_BITS: i32 = 50;

@@ -189,6 +189,7 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
                 g.set_attr("normalisation", "air kerma (Gy) and planar photon fluence (1/cm2) per source history from photons crossing the disc, by direction; mu_en/rho of dry air from the project's tables");
                 g
             }
+            (Scorer::Detector(d), _) => crate::score::detector::result_group(&si.name, d, n),
             (Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, .. }, _) => {
                 let mut g = Group::with_kind(&si.name, "spectrum");
                 let b = *bins;

@@ -5,6 +5,8 @@
 //! Every score is a mean per incident history with its standard error (1σ). Energy deposited is
 //! kerma-approximation energy: what the photon gives to electrons is counted where it happens.
 
+pub mod detector;
+pub mod grid;
 pub mod tally;
 
 pub use tally::Tally;
@@ -137,6 +139,8 @@ pub enum Scorer {
         /// `3·bins..4·bins` all of them (photons per history).
         tally: Tally,
     },
+    /// An imaging detector: primary and scatter images, SPR, grid, forced detection.
+    Detector(Box<detector::DetectorScorer>),
 }
 
 impl Scorer {
@@ -174,6 +178,7 @@ impl Scorer {
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
             | Scorer::AirKerma { tally, .. } => tally,
+            Scorer::Detector(d) => &d.tally,
         }
     }
 
@@ -186,28 +191,35 @@ impl Scorer {
             | Scorer::Interactions { tally }
             | Scorer::TransmittedSpectrum { tally, .. }
             | Scorer::AirKerma { tally, .. } => tally,
+            Scorer::Detector(d) => &mut d.tally,
         }
     }
 
     /// True for scorers that need every interaction site ([`Scorer::interaction`]).
     pub fn wants_interactions(&self) -> bool {
-        false
+        matches!(self, Scorer::Detector(d) if d.forced_detection())
     }
 
     /// An interaction about to happen (next-event estimators look from here).
     #[inline]
     pub fn interaction(&mut self, problem: &crate::transport::Problem, site: &InteractionSite, history: u64) {
-        let _ = (problem, site, history);
+        if let Scorer::Detector(d) = self {
+            d.interaction(problem, site, history);
+        }
     }
 
     /// True for scorers that need every flight segment ([`Scorer::segment`]).
     pub fn wants_segments(&self) -> bool {
-        matches!(self, Scorer::AirKerma { .. })
+        matches!(self, Scorer::AirKerma { .. } | Scorer::Detector(_))
     }
 
     /// A straight flight of `photon` from its position over `length_cm` (through any medium).
     #[inline]
     pub fn segment(&mut self, photon: &PhotonView, length_cm: f64, history: u64) {
+        if let Scorer::Detector(d) = self {
+            d.segment(photon, length_cm, history);
+            return;
+        }
         if let Scorer::AirKerma { axis, center_cm, radius_cm, air, tally } = self {
             let a = *axis;
             let plane = center_cm.axis(a);

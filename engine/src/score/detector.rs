@@ -138,6 +138,8 @@ pub const MAX_COMPONENTS: usize = 16;
 const MAX_MATERIALS: usize = 16;
 /// Longest energy sub-bin of the deterministic primary (keV).
 const PRIMARY_SUB_BIN_KEV: f64 = 0.5;
+/// Sub-pixel points per axis of the deterministic primary in pixels the field edge crosses.
+const EDGE_SUBPIXELS: usize = 24;
 
 /// Errors setting up a detector.
 #[derive(Debug, thiserror::Error, PartialEq)]
@@ -928,8 +930,13 @@ impl DetectorSetup {
         let mut mt = [0.0; MAX_MATERIALS];
         for iv in 0..nv {
             for iu in 0..nu {
+                // A pixel the field edge crosses (some sub-pixel points in, some out) is
+                // resampled with EDGE_SUBPIXELS² points.
+                let mut ns = ns;
+                let (acc, acc_ng) = loop {
                 let mut acc = 0.0;
                 let mut acc_ng = 0.0;
+                let mut inside = 0usize;
                 for sv in 0..ns {
                     for su in 0..ns {
                         let du = -0.5 * self.spec.size_cm[0] + (iu as f64 + (su as f64 + 0.5) / ns as f64) * self.pitch[0];
@@ -968,6 +975,7 @@ impl DetectorSetup {
                             }
                             Emission::Pencil { .. } => unreachable!(),
                         };
+                        inside += 1;
                         let cos_det = dir.axis(self.n_axis).abs();
                         let fast = mass_thickness(geometry, nmat, from, dir, length, &mut mt);
                         for (k, &(e, p)) in energies.iter().enumerate() {
@@ -997,9 +1005,16 @@ impl DetectorSetup {
                         }
                     }
                 }
+                if inside > 0 && inside < ns * ns && ns < EDGE_SUBPIXELS {
+                    ns = EDGE_SUBPIXELS;
+                    continue;
+                }
                 let norm = 1.0 / (ns * ns) as f64;
-                image[iv * nu + iu] = acc * norm;
-                image_ng[iv * nu + iu] = acc_ng * norm;
+                break (acc * norm, acc_ng * norm);
+                };
+                image[iv * nu + iu] = acc;
+                image_ng[iv * nu + iu] = acc_ng;
+
             }
         }
         let [iu0, iu1, iv0, iv1] = self.roi;

@@ -196,6 +196,7 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
                 pair(&mut g, "kerma", &[mean.len()], mean, sigma, "keV/g");
                 g
             }
+            (Scorer::Detector(d), _) => crate::score::detector::result_group(&si.name, d, n),
             (Scorer::TransmittedSpectrum { e0_kev, de_kev, bins, .. }, _) => {
                 let mut g = Group::with_kind(&si.name, "spectrum");
                 let b = *bins;

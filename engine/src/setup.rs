@@ -326,7 +326,12 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                     library_materials.clone(),
                 )))
             }
-            ScoreKind::Detector(_) => {
+            ScoreKind::Detector(det) => crate::score::Scorer::Detector(Box::new(
+                crate::score::detector::from_deck(det, &geometry, &mats.tables, &source, &options, |name, k| resolve_material(d, name, k).map_err(|e| e.message))
+                    .map_err(|m| err(&key, m))?,
+            )),
+            #[allow(unreachable_patterns)]
+            _ => {
                 return Err(err(&key, "this kind of score cannot be run by this version yet (available: layer_energy, depth_dose, escape, interaction_counts, transmitted_spectrum, air_kerma)"));
             }
         };

@@ -6,6 +6,8 @@
 //! kerma-approximation energy: what the photon gives to electrons is counted where it happens.
 
 pub mod axial;
+pub mod detector;
+pub mod grid;
 pub mod tally;
 pub mod voxel_dose;
 
@@ -143,6 +145,8 @@ pub enum Scorer {
     },
     /// Collision kerma of chosen media on on-axis discs of planes normal to z (keV/g per history).
     PlaneKerma(axial::PlaneKerma),
+    /// An imaging detector: primary and scatter images, SPR, grid, forced detection.
+    Detector(Box<detector::DetectorScorer>),
 }
 
 impl Scorer {
@@ -182,6 +186,7 @@ impl Scorer {
             | Scorer::AirKerma { tally, .. }
             | Scorer::PlaneKerma(axial::PlaneKerma { tally, .. }) => tally,
             Scorer::VoxelDose(v) => &v.tally,
+            Scorer::Detector(d) => &d.tally,
         }
     }
 
@@ -196,24 +201,27 @@ impl Scorer {
             | Scorer::AirKerma { tally, .. }
             | Scorer::PlaneKerma(axial::PlaneKerma { tally, .. }) => tally,
             Scorer::VoxelDose(v) => &mut v.tally,
+            Scorer::Detector(d) => &mut d.tally,
         }
     }
 
     /// True for scorers that need every interaction site ([`Scorer::interaction`]).
     pub fn wants_interactions(&self) -> bool {
-        false
+        matches!(self, Scorer::Detector(d) if d.forced_detection())
     }
 
     /// An interaction about to happen (next-event estimators look from here).
     #[inline]
     pub fn interaction(&mut self, problem: &crate::transport::Problem, site: &InteractionSite, history: u64) {
-        let _ = (problem, site, history);
+        if let Scorer::Detector(d) = self {
+            d.interaction(problem, site, history);
+        }
     }
 
     /// True for scorers that need every flight segment ([`Scorer::segment`]).
     pub fn wants_segments(&self) -> bool {
         match self {
-            Scorer::AirKerma { .. } | Scorer::PlaneKerma(_) => true,
+            Scorer::AirKerma { .. } | Scorer::PlaneKerma(_) | Scorer::Detector(_) => true,
             Scorer::VoxelDose(v) => v.estimator == voxel_dose::DoseEstimator::TrackLength,
             _ => false,
         }
@@ -228,6 +236,10 @@ impl Scorer {
         }
         if let Scorer::PlaneKerma(p) = self {
             return p.segment(photon, length_cm, history);
+        }
+        if let Scorer::Detector(d) = self {
+            d.segment(photon, length_cm, history);
+            return;
         }
         if let Scorer::AirKerma { axis, center_cm, radius_cm, air, tally } = self {
             let a = *axis;

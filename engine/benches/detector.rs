@@ -1,0 +1,31 @@
+//! P2 (imaging scatter) benchmark: time per batch of histories for the analog and the
+//! forced-detection detector, and — printed once — the efficiency 1/(σ²T) of the ROI mean
+//! scatter for both and their ratio. Fixed seeds. Coarse pixels (1 cm) keep the per-run set-up
+//! short; `DOSEMILL_P2_PITCH_CM=0.2` runs the reference 2 mm pitch.
+
+use criterion::{criterion_group, criterion_main, Criterion};
+use dosemill_engine::score::detector::p2;
+use dosemill_engine::transport::{run, RunSettings};
+
+fn pitch() -> f64 {
+    std::env::var("DOSEMILL_P2_PITCH_CM").ok().and_then(|s| s.parse().ok()).unwrap_or(1.0)
+}
+
+fn bench(c: &mut Criterion) {
+    let pitch = pitch();
+    let (a, f, gain) = p2::efficiency_gain(pitch, 200_000, 10_000, 1);
+    eprintln!(
+        "P2 ({pitch} cm pixels): analog ROI scatter {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); forced {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); gain {gain:.1}; SPR {:.2}",
+        a.roi_scatter, a.roi_scatter_sigma, a.wall_time_s, a.efficiency_per_s, f.roi_scatter, f.roi_scatter_sigma, f.wall_time_s, f.efficiency_per_s, f.spr_roi
+    );
+    for forced in [false, true] {
+        let p = p2::problem(pitch, forced);
+        let n = if forced { 500 } else { 10_000 };
+        c.bench_function(&format!("p2_{}_{n}_histories", if forced { "forced" } else { "analog" }), |b| {
+            b.iter(|| run(&p, &RunSettings { histories: n, seed: 2, chunk_histories: n, threads: 1, progress: false }))
+        });
+    }
+}
+
+criterion_group! { name = benches; config = Criterion::default().sample_size(10); targets = bench }
+criterion_main!(benches);

@@ -1,0 +1,16 @@
+//! P2 efficiency measurement (slow; run with `-- --ignored --nocapture`): analog vs forced
+//! detection for the ROI mean scatter, at the reference 2 mm pitch. Prints the figures; the
+//! assertion is only that both estimates agree within 4σ (the same expectation).
+
+use dosemill_engine::score::detector::p2;
+
+#[test]
+#[ignore]
+fn p2_forced_detection_efficiency_gain() {
+    let pitch: f64 = std::env::var("DOSEMILL_P2_PITCH_CM").ok().and_then(|s| s.parse().ok()).unwrap_or(0.2);
+    let (a, f, gain) = p2::efficiency_gain(pitch, 300_000, 6_000, 1);
+    eprintln!("analog: {a:?}\nforced: {f:?}\ngain {gain:.1}");
+    let z = (a.roi_scatter - f.roi_scatter) / (a.roi_scatter_sigma.powi(2) + f.roi_scatter_sigma.powi(2)).sqrt();
+    eprintln!("z = {z:.2}");
+    assert!(z.abs() < 4.0);
+}

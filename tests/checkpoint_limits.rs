@@ -7,11 +7,29 @@ use std::process::{Command, Output};
 
 const BIN: &str = env!("CARGO_BIN_EXE_dosemill");
 
-fn scratch(tag: &str) -> PathBuf {
+/// A scratch folder, removed when the test passes (kept for inspection when it fails).
+struct Scratch(PathBuf);
+
+impl std::ops::Deref for Scratch {
+    type Target = Path;
+    fn deref(&self) -> &Path {
+        &self.0
+    }
+}
+
+impl Drop for Scratch {
+    fn drop(&mut self) {
+        if !std::thread::panicking() {
+            let _ = std::fs::remove_dir_all(&self.0);
+        }
+    }
+}
+
+fn scratch(tag: &str) -> Scratch {
     let p = std::env::temp_dir().join(format!("dosemill-limits-{tag}-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&p);
     std::fs::create_dir_all(&p).unwrap();
-    p
+    Scratch(p)
 }
 
 fn text(o: &Output) -> String {

@@ -14,11 +14,29 @@ use dosemill_engine::output::{self, ResultFile};
 
 const BIN: &str = env!("CARGO_BIN_EXE_dosemill");
 
-fn scratch(tag: &str) -> PathBuf {
+/// A scratch folder, removed when the test passes (kept for inspection when it fails).
+struct Scratch(PathBuf);
+
+impl std::ops::Deref for Scratch {
+    type Target = Path;
+    fn deref(&self) -> &Path {
+        &self.0
+    }
+}
+
+impl Drop for Scratch {
+    fn drop(&mut self) {
+        if !std::thread::panicking() {
+            let _ = std::fs::remove_dir_all(&self.0);
+        }
+    }
+}
+
+fn scratch(tag: &str) -> Scratch {
     let p = std::env::temp_dir().join(format!("dosemill-ckpt-{tag}-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&p);
     std::fs::create_dir_all(&p).unwrap();
-    p
+    Scratch(p)
 }
 
 /// A demo deck (invented scenario): 60 keV pencil beam on water with an Al backing, enough
@@ -262,26 +280,42 @@ fn full_disk_keeps_the_previous_result_and_the_last_checkpoint() {
 #[test]
 fn second_signal_exits_at_once_and_the_last_checkpoint_still_resumes() {
     let dir = scratch("twice");
-    // Large chunks (0.1 s or more each), so the second signal lands while chunks are in hand.
+    // Large chunks (0.1 s or more each), so further signals land while chunks are in hand.
     let deck = write_deck_chunked(&dir, 12_000_000, 400_000, 8);
-    let out = dir.join("run");
-    let ckpt = out.join("w.h5.ckpt");
-    let mut child = Command::new(BIN)
-        .args(["run", deck.to_str().unwrap(), "--quiet", "--threads", "2", "--out", out.to_str().unwrap(), "--checkpoint-every-chunks", "16"])
-        .stdout(Stdio::null())
-        .stderr(Stdio::null())
-        .spawn()
-        .unwrap();
-    assert!(wait_for(&ckpt, Duration::from_secs(120)), "no checkpoint appeared");
-    let pid = child.id().to_string();
-    // A second signal while the chunks in hand are still running ends the process at once. The
-    // pause only keeps the kernel from folding the two signals into one.
-    let k = Command::new("sh").args(["-c", &format!("kill -INT {pid}; sleep 0.05; kill -INT {pid}")]).status().unwrap();
-    assert!(k.success());
-    let status = child.wait().unwrap();
-    assert_eq!(status.code(), Some(4), "second signal exits with 4");
-    assert!(!out.join("w.h5").exists(), "no result written after an immediate exit");
-    let o = dosemill(&["resume", ckpt.to_str().unwrap(), "--quiet"]);
+    // After the first SIGINT, SIGINT is repeated every 20 ms until the process is gone (the
+    // repetition keeps the kernel from folding two pending signals into one). If the chunks in
+    // hand happened to finish between two signals, the run ends normally as interrupted (3);
+    // the attempt is then repeated, up to three times.
+    let mut aborted = None;
+    for attempt in 0..3 {
+        let out = dir.join(format!("run{attempt}"));
+        let ckpt = out.join("w.h5.ckpt");
+        let mut child = Command::new(BIN)
+            .args(["run", deck.to_str().unwrap(), "--quiet", "--threads", "2", "--out", out.to_str().unwrap(), "--checkpoint-every-chunks", "16"])
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .unwrap();
+        assert!(wait_for(&ckpt, Duration::from_secs(120)), "no checkpoint appeared");
+        let pid = child.id();
+        let k = Command::new("sh")
+            .args(["-c", &format!("kill -INT {pid}; for i in $(seq 100); do sleep 0.02; kill -INT {pid} 2>/dev/null || break; done")])
+            .status()
+            .unwrap();
+        assert!(k.success());
+        let code = child.wait().unwrap().code();
+        match code {
+            Some(4) => {
+                assert!(!out.join("w.h5").exists(), "no result written after an immediate exit");
+                aborted = Some(out);
+                break;
+            }
+            Some(3) => assert_eq!(root_str(&out.join("w.h5"), "completion"), "partial"),
+            other => panic!("attempt {attempt}: exit code {other:?}, expected 4 (or 3)"),
+        }
+    }
+    let out = aborted.expect("a second signal never ended the process at once (exit code 4) in three attempts");
+    let o = dosemill(&["resume", out.join("w.h5.ckpt").to_str().unwrap(), "--quiet"]);
     assert!(o.status.success(), "{}", text(&o));
     let reference = reference(&dir, &deck);
     assert!(groups(&out.join("w.h5")).bits_equal(&groups(&reference)));

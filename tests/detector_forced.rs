@@ -21,7 +21,7 @@ fn detector(s: &Scorer) -> &DetectorScorer {
     }
 }
 
-fn deck(layers: &str, forced: bool, extra: &str) -> String {
+fn deck(layers: &str, forced: bool, extra: &str, world: &str) -> String {
     format!(
         r#"
 [run]
@@ -40,7 +40,7 @@ filters = ["Al:2.5"]
 
 [geometry]
 kind = "slabs"
-world = "air"
+world = "{world}"
 start_z_cm = -14
 
 {layers}
@@ -93,12 +93,12 @@ fn compare(a: &RunResult, b: &RunResult, categories: &[usize]) {
     }
 }
 
-/// Water: single Compton, single Rayleigh, multiple and total scatter images.
+/// Water in vacuum: single Compton, single Rayleigh, multiple and total scatter images.
 #[test]
 fn forced_detection_matches_analog_scatter_in_water() {
     let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10";
-    let analog = go(&problem(&deck(layers, false, "")), 1_500_000, 1);
-    let forced = go(&problem(&deck(layers, true, "")), 60_000, 2);
+    let analog = go(&problem(&deck(layers, false, "", "vacuum")), 1_500_000, 1);
+    let forced = go(&problem(&deck(layers, true, "", "vacuum")), 60_000, 2);
     compare(&analog, &forced, &[1, 2, 3, 5]);
     // The ROI mean of the forced estimate against the analog crossings of the same FD run.
     let s = detector(&forced.scorers[0]).summary(forced.histories);
@@ -108,12 +108,12 @@ fn forced_detection_matches_analog_scatter_in_water() {
 
 /// A caesium iodide layer fluoresces (K lines of I and Cs at 28–36 keV): forced detection of
 /// fluorescence emission (cascade drawn with the scorer's own stream) against analog, with the
-/// absorbed-energy response.
+/// absorbed-energy response, in air.
 #[test]
 fn forced_detection_matches_analog_fluorescence_and_scatter_behind_csi() {
     let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 4\n\n[[geometry.layer]]\nmaterial = \"csi\"\nthickness_cm = 0.05";
     let extra = "response = \"absorbed\"\nlayer = { material = \"gd2o2s\", thickness_cm = 0.02 }";
-    let analog = go(&problem(&deck(layers, false, extra)), 1_000_000, 3);
-    let forced = go(&problem(&deck(layers, true, extra)), 60_000, 4);
+    let analog = go(&problem(&deck(layers, false, extra, "air")), 1_000_000, 3);
+    let forced = go(&problem(&deck(layers, true, extra, "air")), 60_000, 4);
     compare(&analog, &forced, &[4, 5]);
 }

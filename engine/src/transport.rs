@@ -307,29 +307,45 @@ impl Problem {
                 ctx.escape(&p);
                 return;
             }
-            let boundary = slabs.step(p.pos, p.dir, p.region);
-            let medium = slabs.material_of(p.region);
-            let free_path = match medium {
-                Some((m, rho)) if rho > 0.0 => rng.exponential() / (p.mu_rho(m, &self.materials) * rho),
-                _ => f64::INFINITY,
-            };
-            if free_path >= boundary.distance_cm {
-                if ctx.segments {
-                    ctx.segment(&p, boundary.distance_cm);
-                }
-                p.pos = boundary.landing(p.pos, p.dir);
-                p.region = boundary.next;
-                continue;
-            }
-            if ctx.segments {
-                ctx.segment(&p, free_path);
-            }
-            p.pos = p.pos + p.dir * free_path;
-            let (m, _) = medium.unwrap();
-            if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
+            if !self.exact_step(slabs, &mut p, rng, ctx, stack, depth) {
                 return;
             }
         }
+    }
+
+    /// One exact step: to the next boundary, or to a sampled interaction before it (the free
+    /// path is resampled at each boundary, which the memoryless exponential allows).
+    /// Returns false when the photon is gone.
+    #[inline(always)]
+    fn exact_step<G: ExactGeometry>(
+        &self,
+        geometry: &G,
+        p: &mut Photon,
+        rng: &mut Stream,
+        ctx: &mut Ctx,
+        stack: &mut [Photon; STACK_DEPTH],
+        depth: &mut usize,
+    ) -> bool {
+        let boundary = geometry.step(p.pos, p.dir, p.region);
+        let medium = geometry.material_of(p.region);
+        let free_path = match medium {
+            Some((m, rho)) if rho > 0.0 => rng.exponential() / (p.mu_rho(m, &self.materials) * rho),
+            _ => f64::INFINITY,
+        };
+        if free_path >= boundary.distance_cm {
+            if ctx.segments {
+                ctx.segment(p, boundary.distance_cm);
+            }
+            p.pos = boundary.landing(p.pos, p.dir);
+            p.region = boundary.next;
+            return true;
+        }
+        if ctx.segments {
+            ctx.segment(p, free_path);
+        }
+        p.pos = p.pos + p.dir * free_path;
+        let (m, _) = medium.expect("an interaction needs a medium");
+        self.interact(p, &self.materials[m as usize], rng, ctx, stack, depth)
     }
 
     /// Follows one photon through a voxel world until it is absorbed or escapes: exact tracking
@@ -359,26 +375,7 @@ impl Problem {
                 return;
             }
             if p.region.is_world() {
-                let boundary = grid.step(p.pos, p.dir, p.region);
-                let medium = grid.material_of(p.region);
-                let free_path = match medium {
-                    Some((m, rho)) if rho > 0.0 => rng.exponential() / (p.mu_rho(m, &self.materials) * rho),
-                    _ => f64::INFINITY,
-                };
-                if free_path >= boundary.distance_cm {
-                    if ctx.segments {
-                        ctx.segment(&p, boundary.distance_cm);
-                    }
-                    p.pos = boundary.landing(p.pos, p.dir);
-                    p.region = boundary.next;
-                    continue;
-                }
-                if ctx.segments {
-                    ctx.segment(&p, free_path);
-                }
-                p.pos = p.pos + p.dir * free_path;
-                let (m, _) = medium.unwrap();
-                if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
+                if !self.exact_step(grid, &mut p, rng, ctx, stack, depth) {
                     return;
                 }
                 continue;

@@ -459,3 +459,30 @@ fn many_errors_are_reported_in_file_order() {
     assert!(errs.len() >= 5, "{errs:?}");
     assert!(lines.windows(2).all(|w| w[0] <= w[1]), "{lines:?}");
 }
+
+/// Relative paths are taken from the folder of the file that writes them, at any include depth.
+#[test]
+fn nested_includes_resolve_paths_from_their_own_folders() {
+    let d = good("nested_include.toml");
+    assert_eq!(d.resolved.run.histories, 2000);
+    let SourceEnergy::SpectrumFile { path, .. } = &d.resolved.source.energy else {
+        panic!()
+    };
+    assert_eq!(
+        path.canonicalize().unwrap(),
+        corpus("good")
+            .join("demo_spectrum.csv")
+            .canonicalize()
+            .unwrap()
+    );
+    let roles: Vec<deck::FileRole> = d.files.iter().map(|f| f.role).collect();
+    assert_eq!(
+        roles,
+        [
+            deck::FileRole::Deck,
+            deck::FileRole::Include,
+            deck::FileRole::Include,
+            deck::FileRole::Spectrum
+        ]
+    );
+}

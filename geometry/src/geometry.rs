@@ -88,3 +88,16 @@ impl From<VoxelGrid> for Geometry {
         Geometry::Voxels(v)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Workers share one geometry by reference: it must be `Send + Sync` (compile-time check).
+    #[test]
+    fn geometry_is_shareable_between_threads() {
+        fn shareable<T: Send + Sync>() {}
+        shareable::<Geometry>();
+        shareable::<crate::VoxelWalk<'static>>();
+    }
+}

@@ -153,7 +153,7 @@ impl SlabStack {
             }
         };
         let block = Aabb::new(Vec3::new(x_lo, y_lo, z0_cm), Vec3::new(x_hi, y_hi, z));
-        if !wb.contains_box(&block) || !(x_lo < x_hi && y_lo < y_hi) {
+        if !wb.contains_box(&block) || x_lo >= x_hi || y_lo >= y_hi {
             return Err(GeometryError::WorldTooSmall {
                 object: block,
                 world: wb,

@@ -96,7 +96,7 @@ impl GridLayout {
     /// # Errors
     /// A zero dimension, too many voxels, or a non-finite or non-positive size, or a non-finite origin.
     pub fn validate(&self) -> Result<(), GeometryError> {
-        if self.dims.iter().any(|&n| n == 0) {
+        if self.dims.contains(&0) {
             return Err(GeometryError::BadDimensions { dims: self.dims });
         }
         let n = self
@@ -417,7 +417,8 @@ impl VoxelGrid {
         for i in 0..self.num_voxels() {
             let k = self.material.get(i) as usize;
             let d = self.voxel_density(i, k);
-            if !(m[k] >= d) {
+            // Also replaces the NaN start value.
+            if m[k].is_nan() || d > m[k] {
                 m[k] = d;
             }
         }
@@ -682,7 +683,8 @@ impl<'a> VoxelWalk<'a> {
         };
         let t0 = c.enter_cm.max(0.0);
         let t1 = c.exit_cm.min(max_distance_cm);
-        if !(t0 < t1) {
+        // Empty (or NaN) interval: nothing to walk.
+        if t0.is_nan() || t1.is_nan() || t0 >= t1 {
             return w;
         }
         let q = p + d * t0;
@@ -889,5 +891,26 @@ mod tests {
         assert_eq!(g.material_of(Region(1)), Some((1, 1.85)));
         assert_eq!(g.material_of(Region::WORLD), None);
         assert!(g.set_nominal_densities(&[1.0]).is_err());
+    }
+
+    #[test]
+    fn majorant_densities_per_material() {
+        let layout = GridLayout {
+            dims: [4, 1, 1],
+            voxel_size_cm: Vec3::new(1.0, 1.0, 1.0),
+            origin_cm: Vec3::ZERO,
+        };
+        let m = MaterialIndices::U8(vec![0, 1, 0, 1]);
+        let g = VoxelGrid::new(
+            layout,
+            m,
+            Some(vec![1.0, 1.5, 1.25, 0.5]),
+            vec!["a".into(), "b".into(), "unused".into()],
+        )
+        .unwrap();
+        let maj = g.max_density_by_material();
+        assert_eq!(&maj[..2], &[1.25, 1.5]);
+        assert!(maj[2].is_nan());
+        assert_eq!(g.heap_bytes(), 4 + 16);
     }
 }

@@ -62,7 +62,7 @@ pub enum VoxelFileError {
         /// The file read.
         path: PathBuf,
         /// What is wrong with the grid.
-        source: GeometryError,
+        source: Box<GeometryError>,
     },
     /// An HDF5 file that cannot be read or written, or lacks an item of the layout.
     #[error("{}: {message}", path.display())]
@@ -215,7 +215,7 @@ pub fn read_raw_voxels(header_path: &Path) -> Result<VoxelGrid, VoxelFileError> 
     let layout = h.layout_of();
     layout.validate().map_err(|source| VoxelFileError::Grid {
         path: header_path.to_path_buf(),
-        source,
+        source: Box::new(source),
     })?;
     let dir = header_path.parent().unwrap_or(Path::new("."));
     let index_path = dir.join(&h.index_file);
@@ -247,7 +247,10 @@ pub fn read_raw_voxels(header_path: &Path) -> Result<VoxelGrid, VoxelFileError> 
             GeometryError::BadVoxelDensity { .. } => grid_path,
             _ => index_path,
         };
-        VoxelFileError::Grid { path, source }
+        VoxelFileError::Grid {
+            path,
+            source: Box::new(source),
+        }
     })
 }
 
@@ -337,7 +340,7 @@ pub mod hdf5_names {
     pub const VOXEL_SIZE: &str = "voxel_size_cm";
     /// Root attribute: low corner of voxel (0,0,0) (cm), 3 floats.
     pub const ORIGIN: &str = "origin_cm";
-    /// Root attribute: material names, string array; index i means names[i].
+    /// Root attribute: material names, string array; index `i` means `names[i]`.
     pub const MATERIALS: &str = "material_names";
     /// Dataset: material index per voxel, u8 or u16, shape [nz, ny, nx].
     pub const MATERIAL_INDEX: &str = "material_index";
@@ -523,6 +526,6 @@ pub fn read_hdf5_voxels(path: &Path) -> Result<VoxelGrid, VoxelFileError> {
     };
     VoxelGrid::new(layout, material, density, names).map_err(|source| VoxelFileError::Grid {
         path: path.to_path_buf(),
-        source,
+        source: Box::new(source),
     })
 }

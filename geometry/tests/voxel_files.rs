@@ -128,7 +128,7 @@ fn raw_bad_contents_name_the_voxel() {
     match &e {
         VoxelFileError::Grid { source, path } => {
             assert_eq!(
-                *source,
+                **source,
                 GeometryError::MaterialOutOfRange {
                     ix: 4,
                     iy: 1,
@@ -160,12 +160,14 @@ fn raw_bad_contents_name_the_voxel() {
     std::fs::write(&den, &db).unwrap();
     let e = read_raw_voxels(&h).unwrap_err();
     match &e {
-        VoxelFileError::Grid {
-            source: GeometryError::BadVoxelDensity { ix, iy, iz, value },
-            path,
-        } => {
-            assert_eq!((*ix, *iy, *iz), (0, 3, 1));
-            assert!(value.is_nan());
+        VoxelFileError::Grid { source, path } => {
+            match **source {
+                GeometryError::BadVoxelDensity { ix, iy, iz, value } => {
+                    assert_eq!((ix, iy, iz), (0, 3, 1));
+                    assert!(value.is_nan());
+                }
+                ref other => panic!("wrong error {other}"),
+            }
             assert!(path.ends_with("demo.density.raw"));
         }
         other => panic!("wrong error {other}"),
@@ -213,7 +215,7 @@ fn hdf5_out_of_range_material_names_the_voxel() {
     match &e {
         VoxelFileError::Grid { source, .. } => {
             assert_eq!(
-                *source,
+                **source,
                 GeometryError::MaterialOutOfRange {
                     ix: 2,
                     iy: 0,

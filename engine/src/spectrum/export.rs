@@ -10,13 +10,14 @@ use super::Spectrum;
 /// beam quality as attributes.
 ///
 /// Datasets: `fluence` (lines in their bins) and `continuum`, both photons per mm² per mAs at
-/// the group's `distance_cm`, on `energy_edges` (keV); `line_energy` (keV) and `line_fluence`.
+/// the group's `distance_cm`, on `energy_edges` (keV); sub-group `lines` with `energy` (keV) and
+/// `fluence` of the characteristic lines (also counted in `fluence`).
 pub fn to_result_file(tube: &Tube, spectrum: &Spectrum, quality: &BeamQuality) -> Result<ResultFile, TreeError> {
     let mut f = ResultFile::new();
     f.set_attr("dosemill_version", env!("CARGO_PKG_VERSION"));
     f.set_attr("data_source", dosemill_xsdata::elements().provenance().source.as_str());
     f.set_attr("data_tables_sha256", dosemill_xsdata::elements().provenance().tables_sha256.as_str());
-    let mut g = Group::with_kind("tube_spectrum", "spectrum");
+    let mut g = Group::with_kind("tube_spectrum", crate::output::kind::SPECTRUM);
     g.set_attr("kvp", tube.kvp);
     g.set_attr("anode", tube.anode.symbol());
     g.set_attr("anode_angle_deg", tube.anode_angle_deg);
@@ -47,11 +48,13 @@ pub fn to_result_file(tube: &Tube, spectrum: &Spectrum, quality: &BeamQuality) -
     );
     g.attach_axis("fluence", 0, "energy_edges", &spectrum.bin_edges_kev, "keV")?;
     g.attach_axis("continuum", 0, "energy_edges", &spectrum.bin_edges_kev, "keV")?;
-    g.add_dataset(Dataset::f64_1d("line_energy", spectrum.lines.iter().map(|l| l.kev).collect(), "keV"));
-    g.add_dataset(
-        Dataset::f64_1d("line_fluence", spectrum.lines.iter().map(|l| l.fluence_per_mm2_per_mas).collect(), "1/mm2")
+    let mut lines = Group::new("lines");
+    lines.add_dataset(Dataset::f64_1d("energy", spectrum.lines.iter().map(|l| l.kev).collect(), "keV"));
+    lines.add_dataset(
+        Dataset::f64_1d("fluence", spectrum.lines.iter().map(|l| l.fluence_per_mm2_per_mas).collect(), "1/mm2")
             .with_attr("normalisation", "per mAs at distance_cm"),
     );
+    g.add_group(lines);
     f.add_group(g);
     Ok(f)
 }

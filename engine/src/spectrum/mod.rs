@@ -124,8 +124,8 @@ pub enum SpectrumError {
     /// Distance or air path outside the accepted range.
     #[error("distance {0} cm is outside the valid range 1–10000 cm")]
     DistanceOutOfRange(f64),
-    /// Material not in the library.
-    #[error("unknown filter material `{0}`; use a name from `dosemill materials` (e.g. Al, Cu, Be, Mo, Rh)")]
+    /// Material not in the library (the text is the library's message, with suggestions).
+    #[error("filter material: {0}")]
     UnknownMaterial(String),
     /// The data tables refused a request.
     #[error("interaction data: {0}")]

@@ -37,7 +37,9 @@ pub struct SpectrumOptions {
     pub distance_cm: f64,
     /// Air between focal spot and the point of interest (cm); `None` = `distance_cm`.
     pub air_path_cm: Option<f64>,
-    /// Attenuation of photons on their way out of the anode.
+    /// The anode model: attenuation of photons on their way out of the anode, electron
+    /// diffusion and backscatter, photo-excitation of lines by the continuum. `false` gives
+    /// Kramers' ideal thick target (every electron slows fully, nothing is absorbed).
     pub self_absorption: bool,
     /// Inherent filtration, added filters and the air path.
     pub filtration: bool,

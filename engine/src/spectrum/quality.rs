@@ -67,7 +67,7 @@ fn thickness_for_fraction(
         .map(|t| Ok(data::mu_rho(&m, t.0)? * rho * 0.1))
         .collect::<Result<_, SpectrumError>>()?;
     let k0: f64 = terms.iter().map(|t| t.2).sum();
-    if !(k0 > 0.0) {
+    if k0.is_nan() || k0 <= 0.0 {
         return Err(SpectrumError::EmptyBeam);
     }
     let ratio = |x: f64| terms.iter().zip(&mu_per_mm).map(|(t, m)| t.2 * (-m * x).exp()).sum::<f64>() / k0;
@@ -107,7 +107,7 @@ impl BeamQuality {
         let terms = kerma_terms(s)?;
         let k: f64 = terms.iter().map(|t| t.2).sum();
         let phi: f64 = terms.iter().map(|t| t.1).sum();
-        if !(k > 0.0) {
+        if k.is_nan() || k <= 0.0 {
             return Err(SpectrumError::EmptyBeam);
         }
         let (h1, h2) = hvls_mm(s, "Al")?;

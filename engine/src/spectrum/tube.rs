@@ -90,14 +90,44 @@ pub struct InherentFiltration {
     pub al_equivalent_mm: f64,
 }
 
-/// One layer of added filtration.
+/// One layer of added filtration. In a deck either a table `{ material = "Al", thickness_mm = 2.5 }`
+/// or the short form `"Al:2.5"`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(try_from = "FilterRepr")]
 pub struct Filter {
     /// Material name as the materials library knows it ("Al", "Cu", "Mo", "water", …).
     pub material: String,
     /// Thickness (mm).
     pub thickness_mm: f64,
+}
+
+/// The two deck forms of a filter.
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum FilterRepr {
+    Spec(String),
+    Table(FilterTable),
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct FilterTable {
+    material: String,
+    thickness_mm: f64,
+}
+
+impl TryFrom<FilterRepr> for Filter {
+    type Error = SpectrumError;
+    fn try_from(r: FilterRepr) -> Result<Self, Self::Error> {
+        match r {
+            FilterRepr::Spec(s) => s.parse(),
+            FilterRepr::Table(t) => {
+                let f = Filter { material: t.material, thickness_mm: t.thickness_mm };
+                f.validate()?;
+                Ok(f)
+            }
+        }
+    }
 }
 
 impl FromStr for Filter {
@@ -236,6 +266,10 @@ mod tests {
         assert_eq!(t.filters.len(), 1);
         assert!(toml::from_str::<Tube>("kvp = 80\nanode = \"W\"\nfoo = 1").is_err());
         assert!(toml::from_str::<Tube>("kvp = 80\nanode = \"Cu\"").is_err());
+        let t: Tube = toml::from_str("kvp = 80\nanode = \"W\"\nfilters = [\"Al:2.5\", \"Cu:0.1\"]").unwrap();
+        assert_eq!(t.filters[1], Filter { material: "Cu".into(), thickness_mm: 0.1 });
+        assert!(toml::from_str::<Tube>("kvp = 80\nanode = \"W\"\nfilters = [\"Al:-1\"]").is_err());
+        assert!(toml::from_str::<Tube>("kvp = 80\nanode = \"W\"\nfilters = [{ material = \"Al\", thickness_mm = -1 }]").is_err());
     }
 
     #[test]

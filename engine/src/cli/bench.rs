@@ -16,7 +16,8 @@ pub struct Args {
     /// Random seed.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
-    /// Reference problem: `p1` (slab) or `p3` (256³ voxel phantom).
+    /// Reference problem: `p1` (slab), `p2` (detector scatter, analog vs forced detection) or
+    /// `p3` (256³ voxel phantom).
     #[arg(long, default_value = "p1")]
     pub problem: String,
 }
@@ -38,8 +39,22 @@ pub fn run_bench(args: Args) -> anyhow::Result<i32> {
         println!("  wall time             {:.3} s", r.wall_time_s);
         println!("  histories/s           {:.3e} ({:.3e} per thread)", rate, rate / threads as f64);
         return Ok(0);
+    } else if args.problem == "p2" {
+        // Forced detection costs far more per history: run it on a fiftieth of the histories.
+        let forced = (args.histories / 50).max(1000);
+        let (a, f, gain) = crate::score::detector::p2::efficiency_gain(0.2, args.histories, forced, threads);
+        println!("P2: 80 kV tube, 30 × 30 cm field at 100 cm, 20 cm water, 40 × 40 cm detector at 2 mm pitch");
+        println!("  threads               {threads}");
+        for (name, e) in [("analog", &a), ("forced detection", &f)] {
+            println!(
+                "  {name:<17} {} histories, ROI scatter {:.4e} ± {:.2e} keV/cm², {:.2} s, efficiency 1/(σ²T) {:.3e} /s",
+                e.histories, e.roi_scatter, e.roi_scatter_sigma, e.wall_time_s, e.efficiency_per_s
+            );
+        }
+        println!("  efficiency gain       {gain:.2} (forced / analog)");
+        return Ok(0);
     } else if args.problem != "p1" {
-        anyhow::bail!("unknown problem `{}`: choose p1 or p3", args.problem);
+        anyhow::bail!("unknown problem `{}`: choose p1, p2 or p3", args.problem);
     }
     // Interactions per history, from a separate counting run (so the timed run scores depth dose only).
     let counting = benchmarks::p1(vec![Scorer::interactions()]);

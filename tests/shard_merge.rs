@@ -9,29 +9,11 @@ use dosemill_engine::output::{self, ResultFile};
 
 const BIN: &str = env!("CARGO_BIN_EXE_dosemill");
 
-/// A scratch folder, removed when the test passes (kept for inspection when it fails).
-struct Scratch(PathBuf);
-
-impl std::ops::Deref for Scratch {
-    type Target = Path;
-    fn deref(&self) -> &Path {
-        &self.0
-    }
-}
-
-impl Drop for Scratch {
-    fn drop(&mut self) {
-        if !std::thread::panicking() {
-            let _ = std::fs::remove_dir_all(&self.0);
-        }
-    }
-}
+mod support;
+use support::Scratch;
 
 fn scratch(tag: &str) -> Scratch {
-    let p = std::env::temp_dir().join(format!("dosemill-shard-{tag}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&p);
-    std::fs::create_dir_all(&p).unwrap();
-    Scratch(p)
+    support::scratch_named(&format!("shard-{tag}"))
 }
 
 /// Demo deck (invented scenario): 80 kV tungsten tube spectrum through water, 51 chunks (the

@@ -330,10 +330,6 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                 crate::score::detector::from_deck(det, &geometry, &mats.tables, &source, &options, |name, k| resolve_material(d, name, k).map_err(|e| e.message))
                     .map_err(|m| err(&key, m))?,
             )),
-            #[allow(unreachable_patterns)]
-            _ => {
-                return Err(err(&key, "this kind of score cannot be run by this version yet (available: layer_energy, depth_dose, escape, interaction_counts, transmitted_spectrum, air_kerma)"));
-            }
         };
         scorers.push(scorer);
         infos.push(ScoreInfo { name: sc.name.clone(), kind: sc.kind.clone() });

@@ -38,6 +38,16 @@ pub fn p1(extra: Vec<Scorer>) -> Problem {
 /// air, demo geometry), an 80 kV tube beam from a point source at 100 cm with a 20 × 20 cm field,
 /// analog dose on a 64³ scoring grid (blocks of 4³ voxels).
 pub fn p3() -> Result<Problem, String> {
+    p3_with(256, 4)
+}
+
+/// P3 on an n³ phantom of the same 25.6 cm cube (voxels of 25.6/n cm), analog dose on the
+/// phantom grid in blocks of `block`³ voxels (`block` = 1: dose in every phantom voxel).
+pub fn p3_with(n: usize, block: usize) -> Result<Problem, String> {
+    if n == 0 || block == 0 {
+        return Err("phantom size and scoring block must be positive".into());
+    }
+    let h = 25.6 / n as f64;
     use crate::physics::majorant::Majorant;
     use crate::score::voxel_dose::{DoseEstimator, VoxelDose};
     use crate::transport::{VoxelTracking, VoxelWorld};
@@ -49,8 +59,8 @@ pub fn p3() -> Result<Problem, String> {
     let tables: Vec<MaterialXs> = lib.iter().map(|m| MaterialXs::new(m.name(), m.density_g_cm3(), m.composition(), &options).map_err(|e| e.to_string())).collect::<Result<_, _>>()?;
     let part = |shape, material, region: &str| PhantomPart { shape, material, region: Some(region.to_string()) };
     let spec = PhantomSpec {
-        dims: [256, 256, 256],
-        voxel_size_cm: [0.1, 0.1, 0.1],
+        dims: [n, n, n],
+        voxel_size_cm: [h, h, h],
         origin_cm: [-12.8, -12.8, 0.0],
         materials: names.iter().map(|s| s.to_string()).collect(),
         background_material: 0,
@@ -78,7 +88,7 @@ pub fn p3() -> Result<Problem, String> {
         Emission::Point { origin_cm: Vec3::new(0.0, 0.0, -100.0), direction: Vec3::new(0.0, 0.0, 1.0), field: crate::source::Field::Rectangle { width_cm: 20.0, height_cm: 20.0 }, field_distance_cm: 100.0 },
         EnergySpectrum::Ranges { lo_kev: t.lo_kev, hi_kev: t.hi_kev, table: alias },
     );
-    let dose = Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::Analog, grid.clone(), [4, 4, 4], Some(Arc::new((ph.labels, ph.label_names))), Arc::new(lib))));
+    let dose = Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::Analog, grid.clone(), [block, block, block], Some(Arc::new((ph.labels, ph.label_names))), Arc::new(lib))));
     let world = VoxelWorld { tracking: VoxelTracking::Woodcock, grid, majorant, labels: None };
     Ok(Problem { materials: tables, geometry: Geometry::Voxels(Box::new(world)), source, options, scorers: vec![dose] })
 }

@@ -554,11 +554,29 @@ pub fn run_chunks_with(
     stop: Option<&AtomicBool>,
     bar: Option<&indicatif::ProgressBar>,
 ) -> RunResult {
+    let mut acc = RunResult::empty(problem);
+    run_chunks_into(problem, settings, chunks, stop, bar, &mut acc);
+    acc
+}
+
+/// Runs `chunks` and adds their scores, histories, chunks and wall time to `acc` (a result of
+/// `problem`). Workers score into views of `acc`'s tallies: dense tallies get a zeroed copy per
+/// worker, added at the end; shared tallies (voxel dose grids) are scored into directly, so a
+/// large grid exists once however many threads run and however many calls add to `acc`.
+pub fn run_chunks_into(
+    problem: &Problem,
+    settings: &RunSettings,
+    chunks: &[u64],
+    stop: Option<&AtomicBool>,
+    bar: Option<&indicatif::ProgressBar>,
+    acc: &mut RunResult,
+) {
     let start = std::time::Instant::now();
     let next = AtomicUsize::new(0);
     let pool = rayon::ThreadPoolBuilder::new().num_threads(settings.threads.max(1)).build().expect("thread pool");
+    let templates = &acc.scorers;
     let partials: Vec<(Vec<Scorer>, Vec<u64>, u64)> = pool.broadcast(|_| {
-        let mut scorers: Vec<Scorer> = problem.scorers.iter().map(Scorer::zeroed).collect();
+        let mut scorers: Vec<Scorer> = templates.iter().map(Scorer::worker_view).collect();
         let mut done = Vec::new();
         let mut histories = 0u64;
         loop {
@@ -583,18 +601,15 @@ pub fn run_chunks_with(
         }
         (scorers, done, histories)
     });
-    let mut merged: Vec<Scorer> = problem.scorers.iter().map(Scorer::zeroed).collect();
-    let mut all_chunks = Vec::new();
-    let mut histories = 0;
     for (scorers, done, n) in &partials {
-        for (m, s) in merged.iter_mut().zip(scorers) {
+        for (m, s) in acc.scorers.iter_mut().zip(scorers) {
             m.tally_mut().merge(s.tally());
         }
-        all_chunks.extend_from_slice(done);
-        histories += n;
+        acc.chunks.extend_from_slice(done);
+        acc.histories += n;
     }
-    all_chunks.sort_unstable();
-    RunResult { scorers: merged, histories, chunks: all_chunks, wall_time_s: start.elapsed().as_secs_f64() }
+    acc.chunks.sort_unstable();
+    acc.wall_time_s += start.elapsed().as_secs_f64();
 }
 
 impl RunResult {

@@ -31,7 +31,7 @@ use crate::results::{now_rfc3339, result_file, RunMeta};
 use crate::runstate::checkpoint::{self, Checkpoint, Header, Job};
 use crate::runstate::{limits, shard, Identity, ShardSpec};
 use crate::setup;
-use crate::transport::{progress_bar, run_chunks_with, RunResult};
+use crate::transport::{progress_bar, run_chunks_into, RunResult};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, OnceLock};
@@ -427,9 +427,9 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
             if stop.load(Ordering::Relaxed) || interrupted.load(Ordering::Relaxed) {
                 break;
             }
-            let r = run_chunks_with(&problem, &settings, &todo, Some(&stop), bar.as_ref());
-            chunks_since += r.chunks.len() as u64;
-            acc.merge(&r);
+            let before = acc.chunks.len();
+            run_chunks_into(&problem, &settings, &todo, Some(&stop), bar.as_ref(), &mut acc);
+            chunks_since += (acc.chunks.len() - before) as u64;
             if stop.load(Ordering::Relaxed) {
                 break;
             }

@@ -19,7 +19,6 @@
 //! checkpoint, so a crash at any moment leaves either the old or the new checkpoint, whole.
 
 use super::{Identity, ShardSpec};
-use crate::score::Tally;
 use crate::transport::{Problem, RunResult};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
@@ -117,7 +116,7 @@ impl Checkpoint {
     pub fn from_result(header: Header, result: &RunResult) -> Self {
         let tallies = result.scorers.iter().map(|s| {
             let (a, b) = s.tally().raw();
-            (a.to_vec(), b.to_vec())
+            (a.into_owned(), b.into_owned())
         }).collect();
         Checkpoint { header, tallies, chunks: result.chunks.clone() }
     }
@@ -132,7 +131,7 @@ impl Checkpoint {
             if s.tally().len() != sum.len() {
                 return Err(CheckpointError::Corrupt { path: path.into(), what: format!("score {i}: {} bins saved, the deck gives {}", sum.len(), s.tally().len()) });
             }
-            *s.tally_mut() = Tally::from_raw(sum.clone(), sum2.clone());
+            s.tally_mut().load_raw(sum, sum2);
         }
         r.histories = self.header.histories_done;
         r.chunks = self.chunks.clone();

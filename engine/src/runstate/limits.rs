@@ -1,9 +1,11 @@
 //! Memory and disk estimates made before a run starts, so an impossible request is refused
 //! with a message instead of running the machine out of memory hours later.
 //!
-//! The estimate counts what grows with the deck: every tally bin costs [`BYTES_PER_BIN`] bytes
-//! in each worker's copy, in the merged copy and in the copy being checkpointed
-//! (`threads + 2` copies); a voxel geometry costs [`BYTES_PER_GEOMETRY_VOXEL`] per voxel once;
+//! The estimate counts what grows with the deck: every dense tally bin costs [`BYTES_PER_BIN`]
+//! bytes in each worker's copy, in the merged copy and in the copy being checkpointed
+//! (`threads + 2` copies); a voxel dose bin is a shared tally bin ([`SHARED_BYTES_PER_BIN`] once,
+//! whatever the thread count) plus [`VOXEL_OUTPUT_BYTES_PER_BIN`] while its checkpoint or result
+//! is being written; a voxel geometry costs [`BYTES_PER_GEOMETRY_VOXEL`] per voxel once;
 //! plus a fixed [`BASE_BYTES`] for the interaction tables and the program. The result file
 //! holds two f64 (value and σ) per bin and the checkpoint 32 bytes per bin.
 
@@ -11,6 +13,11 @@ use crate::deck::{Geometry, ResolvedDeck, ScoreKind, VoxelContent};
 
 /// Bytes per tally bin per copy: two u128 sums, the pending f64 and the last-history u64.
 pub const BYTES_PER_BIN: u64 = 48;
+pub use crate::score::tally::SHARED_BYTES_PER_BIN;
+/// Bytes per voxel dose bin while the result is written: dose, energy (each with σ) and mass as
+/// f64 in the result tree and again in the HDF5 writer (2 × 5 × 8); the checkpoint (32) needs
+/// less.
+pub const VOXEL_OUTPUT_BYTES_PER_BIN: u64 = 80;
 /// Bytes per voxel of a voxel geometry (material index, density, lookup caches).
 pub const BYTES_PER_GEOMETRY_VOXEL: u64 = 18;
 /// Fixed part: tables, program, buffers.
@@ -36,7 +43,7 @@ pub struct Estimate {
 #[derive(Debug, thiserror::Error)]
 pub enum LimitError {
     /// Not enough memory.
-    #[error("the run needs an estimated {} of memory ({bins} tally bins × {BYTES_PER_BIN} B × {copies} copies for {threads} threads, {voxels} geometry voxels × {BYTES_PER_GEOMETRY_VOXEL} B, plus {} fixed) but the limit is {} ({source_of_limit}); use fewer or coarser bins, fewer threads (--threads), or set {MEMORY_LIMIT_ENV} if more memory is really available", human(*.needed), human(BASE_BYTES), human(*.limit))]
+    #[error("the run needs an estimated {} of memory ({bins} tally bins: dense ones × {BYTES_PER_BIN} B × {copies} copies for {threads} threads, voxel dose ones × {} B; {voxels} geometry voxels × {BYTES_PER_GEOMETRY_VOXEL} B, plus {} fixed) but the limit is {} ({source_of_limit}); use fewer or coarser bins, fewer threads (--threads), or set {MEMORY_LIMIT_ENV} if more memory is really available", human(*.needed), SHARED_BYTES_PER_BIN + VOXEL_OUTPUT_BYTES_PER_BIN, human(BASE_BYTES), human(*.limit))]
     Memory {
         /// Estimated need (bytes).
         needed: u64,
@@ -105,9 +112,12 @@ pub fn estimate(deck: &ResolvedDeck, threads: usize) -> Estimate {
         },
     };
     let bins = deck.scores.iter().fold(0u64, |a, s| a.saturating_add(bins_of(&s.kind, voxels, layers)));
+    let shared = deck.scores.iter().filter(|s| matches!(s.kind, ScoreKind::VoxelDose { .. })).fold(0u64, |a, s| a.saturating_add(bins_of(&s.kind, voxels, layers)));
+    let dense = bins - shared;
     let copies = threads as u64 + 2;
     let memory_bytes = BASE_BYTES
-        .saturating_add(bins.saturating_mul(BYTES_PER_BIN).saturating_mul(copies))
+        .saturating_add(dense.saturating_mul(BYTES_PER_BIN).saturating_mul(copies))
+        .saturating_add(shared.saturating_mul(SHARED_BYTES_PER_BIN + VOXEL_OUTPUT_BYTES_PER_BIN))
         .saturating_add(voxels.saturating_mul(BYTES_PER_GEOMETRY_VOXEL));
     let disk_bytes = bins.saturating_mul(16 + 32).saturating_add(1 << 20);
     Estimate { bins, geometry_voxels: voxels, memory_bytes, disk_bytes }

@@ -21,7 +21,6 @@
 
 use super::{describe_chunks, Identity, ShardSpec};
 use crate::output::{AttrValue, DataBuf, Dataset, Group, ResultFile};
-use crate::score::Tally;
 use crate::transport::{Problem, RunResult};
 use std::path::{Path, PathBuf};
 
@@ -242,7 +241,7 @@ pub fn merge_results(problem: &Problem, shards: &[ShardFile]) -> Result<RunResul
             if sc.tally().len() != sum.len() || sum.len() != sum2.len() {
                 return Err(MergeError::NotShard { path: s.path.clone(), what: format!("tally_{i} has {} bins, the deck gives {}", sum.len(), sc.tally().len()) });
             }
-            *sc.tally_mut() = Tally::from_raw(sum.clone(), sum2.clone());
+            sc.tally_mut().load_raw(sum, sum2);
         }
         part.histories = s.chunks.iter().map(|&c| {
             let r = crate::rng::chunk_range(c, s.identity.chunk_histories, s.identity.histories);

@@ -272,8 +272,17 @@ impl Scorer {
     /// A zeroed copy with the same configuration.
     pub fn zeroed(&self) -> Scorer {
         let mut s = self.clone();
-        let n = s.tally().len();
-        *s.tally_mut() = Tally::new(n);
+        let t = s.tally().zeroed_like();
+        *s.tally_mut() = t;
+        s
+    }
+
+    /// The copy a worker thread scores into: zeroed, except that a shared tally (voxel dose
+    /// grids) stays a view of this scorer's sums (see [`Tally::worker_view`]).
+    pub fn worker_view(&self) -> Scorer {
+        let mut s = self.clone();
+        let t = s.tally().worker_view();
+        *s.tally_mut() = t;
         s
     }
 

@@ -10,9 +10,9 @@
 //! The scoring grid is the phantom grid itself or a coarser grid whose cells are whole blocks of
 //! phantom voxels (`block` = phantom voxels per scoring voxel along each axis).
 //!
-//! Memory: a tally bin takes 48 bytes (two 128-bit sums, the open history's total and its
-//! index) per worker thread, so a grid of n scoring voxels takes 48·n·threads bytes plus the
-//! merged copy; a coarser scoring grid divides n by the block volume.
+//! Memory: the tally is a shared store (`score/tally.rs`): 16 bytes per scoring voxel for the
+//! whole run, whatever the number of worker threads, plus each worker's table of the voxels its
+//! current history touched; results stay bitwise independent of the thread count.
 
 use super::{PhotonView, Tally};
 use dosemill_geometry::{Region, Vec3, VoxelGrid};
@@ -65,7 +65,7 @@ impl VoxelDose {
         let d = grid.dims();
         let dims = [d[0].div_ceil(block[0]), d[1].div_ceil(block[1]), d[2].div_ceil(block[2])];
         let regions = labels.as_ref().map(|l| l.1.len()).unwrap_or(0);
-        let tally = Tally::new(dims[0] * dims[1] * dims[2] + regions);
+        let tally = Tally::shared_template(dims[0] * dims[1] * dims[2] + regions);
         Self { estimator, grid, block, dims, labels, materials, tally }
     }
 

@@ -402,12 +402,12 @@ impl Problem {
                 ctx.segment(&p, s);
             }
             p.pos = p.pos + p.dir * s;
-            let Some(v) = grid.voxel_at(p.pos) else {
+            let Some((v, cell)) = grid.cell_at(p.pos) else {
                 // Rounding put the point on the outer face: leave through it.
                 p.region = Region::WORLD;
                 continue;
             };
-            let (m, rho) = grid.voxel_medium(v);
+            let (m, rho) = grid.medium_at_cell(v, cell);
             let mu = p.mu_rho(m, &self.materials) * rho;
             if rng.uniform() * mu_max < mu {
                 p.region = Region::object(v);

@@ -189,6 +189,72 @@ pub struct VoxelGrid {
     /// Leaving through each grid face (-x, +x, -y, +y, -z, +z) leaves the world at once.
     face_escapes: [bool; 6],
     skin_cm: f64,
+    /// Bricks of voxels with one medium, built on first use (see [`VoxelGrid::medium_at_cell`]).
+    bricks: std::sync::OnceLock<BrickMap>,
+}
+
+/// Voxels per brick edge: 2^`BRICK_SHIFT`.
+const BRICK_SHIFT: u32 = 3;
+/// Material index marking a brick whose voxels differ.
+const MIXED: u16 = u16::MAX;
+
+/// The grid cut into bricks of 8 × 8 × 8 voxels, each holding the material and density shared by
+/// all its voxels, or [`MIXED`]. Looking a medium up in a uniform brick reads this small table
+/// (4 bytes per brick: material and the slot of its density in a table of distinct densities; a
+/// 256³ grid's 32³ bricks take 128 kB and stay in cache) instead of the large per-voxel arrays,
+/// which in delta tracking is a cache miss at nearly every step.
+#[derive(Clone, Debug)]
+struct BrickMap {
+    dims: [usize; 3],
+    /// (material, density slot) per brick; material [`MIXED`] for a brick whose voxels differ.
+    cells: Vec<(u16, u16)>,
+    densities: Vec<f64>,
+}
+
+impl BrickMap {
+    fn build(g: &VoxelGrid) -> BrickMap {
+        let [nx, ny, nz] = g.layout.dims;
+        let b = 1usize << BRICK_SHIFT;
+        let dims = [nx.div_ceil(b), ny.div_ceil(b), nz.div_ceil(b)];
+        let mut first: Vec<Option<(u16, f64)>> = vec![None; dims[0] * dims[1] * dims[2]];
+        let mut mixed = vec![false; first.len()];
+        for iz in 0..nz {
+            for iy in 0..ny {
+                let row = nx * (iy + ny * iz);
+                let brow = dims[0] * ((iy >> BRICK_SHIFT) + dims[1] * (iz >> BRICK_SHIFT));
+                for ix in 0..nx {
+                    let k = brow + (ix >> BRICK_SHIFT);
+                    if mixed[k] {
+                        continue;
+                    }
+                    let (m, rho) = g.voxel_medium(row + ix);
+                    match first[k] {
+                        None => first[k] = Some((m, rho)),
+                        Some((m0, r0)) => mixed[k] = m0 != m || r0.to_bits() != rho.to_bits(),
+                    }
+                }
+            }
+        }
+        let mut densities: Vec<f64> = Vec::new();
+        let cells = first
+            .iter()
+            .zip(&mixed)
+            .map(|(f, &x)| match (f, x) {
+                (Some((m, rho)), false) => {
+                    let slot = match densities.iter().position(|d| d.to_bits() == rho.to_bits()) {
+                        Some(j) => j,
+                        None => {
+                            densities.push(*rho);
+                            densities.len() - 1
+                        }
+                    };
+                    if slot < u16::MAX as usize && *m != MIXED { (*m, slot as u16) } else { (MIXED, 0) }
+                }
+                _ => (MIXED, 0),
+            })
+            .collect();
+        BrickMap { dims, cells, densities }
+    }
 }
 
 impl PartialEq for VoxelGrid {
@@ -278,6 +344,7 @@ impl VoxelGrid {
             inv_size: Vec3::new(1.0 / s.x, 1.0 / s.y, 1.0 / s.z),
             face_escapes: [true; 6],
             skin_cm: 0.0,
+            bricks: std::sync::OnceLock::new(),
         };
         g.set_world(World {
             medium: None,
@@ -335,6 +402,7 @@ impl VoxelGrid {
     /// # Errors
     /// A wrong number of values, or a value that is negative or not finite.
     pub fn set_nominal_densities(&mut self, density_g_cm3: &[f64]) -> Result<(), GeometryError> {
+        self.bricks = std::sync::OnceLock::new();
         if density_g_cm3.len() != self.material_names.len() {
             return Err(GeometryError::DataLength {
                 what: "nominal densities",
@@ -447,6 +515,35 @@ impl VoxelGrid {
     pub fn voxel_medium(&self, i: usize) -> (u16, f64) {
         let m = self.material.get(i);
         (m, self.voxel_density(i, m as usize))
+    }
+
+    /// The voxel containing `p` as (index, [ix, iy, iz]), or `None` outside the (closed) grid or
+    /// for NaN; the same voxel as [`VoxelGrid::voxel_at`].
+    #[inline]
+    pub fn cell_at(&self, p: Vec3) -> Option<(usize, [usize; 3])> {
+        if !self.bounds.contains(p) {
+            return None;
+        }
+        let [nx, ny, _] = self.layout.dims;
+        let ix = self.cell_along(0, p.x, 0.0);
+        let iy = self.cell_along(1, p.y, 0.0);
+        let iz = self.cell_along(2, p.z, 0.0);
+        Some((ix + nx * (iy + ny * iz), [ix, iy, iz]))
+    }
+
+    /// The material index and density of voxel `i` at cell `c` (as from [`VoxelGrid::cell_at`]):
+    /// the same answer as [`VoxelGrid::voxel_medium`], read from the brick table when the voxel's
+    /// 8 × 8 × 8 brick is uniform. The table is built on the first call (one pass over the grid).
+    #[inline]
+    pub fn medium_at_cell(&self, i: usize, c: [usize; 3]) -> (u16, f64) {
+        let b = self.bricks.get_or_init(|| BrickMap::build(self));
+        let k = (c[0] >> BRICK_SHIFT) + b.dims[0] * ((c[1] >> BRICK_SHIFT) + b.dims[1] * (c[2] >> BRICK_SHIFT));
+        let (m, slot) = b.cells[k];
+        if m != MIXED {
+            (m, b.densities[slot as usize])
+        } else {
+            self.voxel_medium(i)
+        }
     }
 
     /// Index of the voxel containing `p`, or `None` outside the (closed) grid or for NaN.
@@ -787,6 +884,36 @@ mod tests {
         };
         let mats = MaterialIndices::U8((0..n).map(|i| (i % 3) as u8).collect());
         VoxelGrid::new(layout, mats, None, vec!["a".into(), "b".into(), "c".into()]).unwrap()
+    }
+
+    /// The brick table answers exactly as the per-voxel arrays, for uniform and mixed bricks,
+    /// partial bricks at the grid's edges, per-voxel densities, and after new nominal densities.
+    #[test]
+    fn brick_lookup_equals_voxel_lookup() {
+        let dims = [19, 10, 17];
+        let n: usize = dims.iter().product();
+        let layout = GridLayout { dims, voxel_size_cm: Vec3::new(0.3, 0.5, 0.2), origin_cm: Vec3::new(-1.0, 0.0, 1.0) };
+        let ijk = |i: usize| [i % dims[0], (i / dims[0]) % dims[1], i / (dims[0] * dims[1])];
+        // Material 1 in a block that covers some bricks whole and cuts others; 2 in one voxel.
+        let mats: Vec<u8> = (0..n).map(|i| { let [x, _, z] = ijk(i); if i == 777 { 2 } else if x < 11 && z >= 3 { 1 } else { 0 } }).collect();
+        let dens: Vec<f32> = (0..n).map(|i| if ijk(i)[1] == 9 { 1.5 } else { 1.0 }).collect();
+        for density in [None, Some(dens)] {
+            let mut g = VoxelGrid::new(layout, MaterialIndices::U8(mats.clone()), density.clone(), vec!["a".into(), "b".into(), "c".into()]).unwrap();
+            g.set_nominal_densities(&[1.0, 2.0, 3.0]).unwrap();
+            let check = |g: &VoxelGrid| {
+                for i in 0..n {
+                    let c = ijk(i);
+                    let (a, b) = (g.medium_at_cell(i, c), g.voxel_medium(i));
+                    assert!(a.0 == b.0 && a.1.to_bits() == b.1.to_bits(), "voxel {i} {c:?}: {a:?} vs {b:?}");
+                }
+            };
+            check(&g);
+            let uniform = g.bricks.get().unwrap().cells.iter().filter(|c| c.0 != MIXED).count();
+            assert!(uniform > 0 && uniform < g.bricks.get().unwrap().cells.len(), "both kinds of brick are exercised");
+            // New nominal densities rebuild the table.
+            g.set_nominal_densities(&[0.5, 2.5, 3.5]).unwrap();
+            check(&g);
+        }
     }
 
     #[test]

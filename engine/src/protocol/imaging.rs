@@ -91,7 +91,8 @@ pub fn detector_deck(e: &Exam, histories: u64, seed: u64) -> Result<String, Dosi
     let fsd = e.fsd_cm();
     let fdd = e.fdd_cm();
     let gap = d.gap();
-    let face_z = thickness_cm + if gap > 0.0 { gap } else { FACE_OFFSET_CM };
+    // Rounded to 1e-6 cm so that the deck text reads back to the same position.
+    let face_z = ((thickness_cm + if gap > 0.0 { gap } else { FACE_OFFSET_CM }) * 1e6).round() / 1e6;
     let anode = match e.anode {
         crate::spectrum::Anode::W => "W",
         crate::spectrum::Anode::Mo => "Mo",

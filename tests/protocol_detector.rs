@@ -112,7 +112,8 @@ anti_scatter_grid = { ratio = 10, strips_per_cm = 40, strip_width_cm = 0.0036, s
     let g = got.grid.as_ref().expect("grid figures");
     assert_eq!(g.primary_transmission.value.to_bits(), (pd / pd_ng).to_bits());
     assert_eq!(got.histories, histories);
-    assert!(got.deck.contains("focus_distance_cm = 100.0"), "{}", got.deck);
+    let text = got.deck.as_deref().unwrap();
+    assert!(text.contains("focus_distance_cm = 100.0"), "{text}");
 }
 
 #[test]

@@ -4,7 +4,9 @@
 //! - a voxel phantom that is a homogeneous water box is the same physical problem as the water
 //!   slab of the same size (geometric identity): backscatter factor, entrance surface dose and
 //!   every central-axis depth dose agree, z-test per figure with |z| < 3.3 (two-sided p ≈ 0.001
-//!   each, 13 comparisons), independent seeds;
+//!   each, 14 comparisons), independent seeds; the SPR at a detector under both is compared the
+//!   same way (the voxel exam scores the detector in the phantom run, the slab exam in a deck
+//!   run of its own);
 //! - the region mass is the box volume × the library density of water (definition of mass);
 //! - the region mean dose of the box lies below the entrance dose and above the exit dose (a
 //!   monotone depth-dose curve in water, common practice);
@@ -65,6 +67,7 @@ mas = 10
 focus_skin_cm = 100
 field_cm = [20, 20]
 patient = {{ material = "water", thickness_cm = 10, lateral_cm = [40, 40] }}
+detector = {{ material = "csi", thickness_mm = 0.6 }}
 
 [[exam]]
 name = "voxel box"
@@ -74,6 +77,7 @@ mas = 10
 focus_skin_cm = 100
 field_cm = [20, 20]
 patient = {{ voxel_deck = "{deck}", thickness_cm = {thickness} }}
+detector = {{ material = "csi", thickness_mm = 0.6 }}
 "#
     )
 }
@@ -104,7 +108,7 @@ fn homogeneous_water_box_reproduces_the_water_slab() {
             worst = (z, key.to_string());
         }
     };
-    for key in ["backscatter_factor", "esd_water", "esd_soft_tissue"] {
+    for key in ["backscatter_factor", "esd_water", "esd_soft_tissue", "spr"] {
         check(key, fig(slab, key), fig(vox, key));
     }
     assert_eq!(slab.depths_cm, vox.depths_cm);
@@ -115,6 +119,11 @@ fn homogeneous_water_box_reproduces_the_water_slab() {
         assert_eq!(vox.depth_media[k], "water");
     }
     assert!(worst.0.abs() < 3.3, "largest |z| {} at {}", worst.0, worst.1);
+    // The detector behind the voxel box sits where the slab exam's does (patient on the
+    // detector) and its Monte Carlo primary agrees with the ray-traced primary through the grid.
+    assert_eq!(fig(vox, "focus_detector_distance").0, fig(slab, "focus_detector_distance").0);
+    let q = fig(vox, "primary_mc_over_deterministic");
+    assert!(((q.0 - 1.0) / q.1).abs() < 3.5 && q.1 < 0.1, "voxel MC / ray-traced primary {q:?}");
 
     // Region: mass = 40 × 40 × 10 cm³ × ρ(water) from the library; mean dose between the
     // exit and the entrance dose.

@@ -22,6 +22,7 @@ use super::dosimetry::{DosimetryError, Estimate};
 use crate::score::detector::{summary, DetectorScorer};
 use crate::score::Scorer;
 use crate::transport::{run, RunSettings};
+use dosemill_geometry::Vec3;
 
 /// Pixel pitch of the protocol detector (cm).
 pub const PIXEL_PITCH_CM: f64 = 1.0;
@@ -48,8 +49,8 @@ pub struct ImagingResult {
     pub grid: Option<GridFigures>,
     /// Histories run.
     pub histories: u64,
-    /// The deck that reproduces the run with `dosemill run`.
-    pub deck: String,
+    /// The deck that reproduces the run with `dosemill run` (slab patients).
+    pub deck: Option<String>,
 }
 
 /// Anti-scatter grid figures.
@@ -82,7 +83,8 @@ pub fn face_side_cm(field_side_cm: f64, fsd_cm: f64, fdd_cm: f64) -> f64 {
     n as f64 * PIXEL_PITCH_CM
 }
 
-/// The deck of an exam's detector run (slab patients only).
+/// The deck of an exam's detector run (slab patients; voxel patients score the detector in
+/// their phantom run, see `voxel`).
 pub fn detector_deck(e: &Exam, histories: u64, seed: u64) -> Result<String, DosimetryError> {
     let Patient::Slab { material, thickness_cm, lateral_cm } = &e.patient else {
         return Err(DosimetryError::Invalid("the detector run needs a slab patient".into()));
@@ -187,7 +189,14 @@ pub fn evaluate_detector(e: &Exam, histories: u64, seed: u64, threads: usize) ->
         return Err(DosimetryError::Invalid("detector deck has no detector score".into()));
     };
     let det: &DetectorScorer = det;
-    let s = det.summary(r.histories);
+    let mut out = summarise(det, r.histories, e.fdd_cm())?;
+    out.deck = Some(text);
+    Ok(out)
+}
+
+/// SPR, scatter fraction and grid figures of a finished detector run.
+pub fn summarise(det: &DetectorScorer, histories: u64, fdd_cm: f64) -> Result<ImagingResult, DosimetryError> {
+    let s = det.summary(histories);
     let (pd, pd_ng) = det.setup.primary_deterministic_roi.ok_or_else(|| DosimetryError::NoScore("no deterministic primary (pencil beam?)".into()))?;
     if !(pd > 0.0) {
         return Err(DosimetryError::NoScore("no primary reaches the detector ROI; check the field and distances".into()));
@@ -211,5 +220,45 @@ pub fn evaluate_detector(e: &Exam, histories: u64, seed: u64, threads: usize) ->
         let dk = k * s0 * ts.sigma / (tp * p0 + ts.value * s0);
         GridFigures { spr_no_grid: sng.scale(1.0 / pd_ng), primary_transmission: Estimate::exact(tp), scatter_transmission: ts, contrast_improvement_factor: Estimate::new(k, dk) }
     });
-    Ok(ImagingResult { fdd_cm: e.fdd_cm(), spr, spr_mc_primary: spr_mc, scatter_fraction: sf, primary_mc_over_deterministic: pmc, grid, histories: r.histories, deck: text })
+    Ok(ImagingResult { fdd_cm, spr, spr_mc_primary: spr_mc, scatter_fraction: sf, primary_mc_over_deterministic: pmc, grid, histories, deck: None })
+}
+
+/// A protocol detector (absorbed signal in the named layer, optional focused grid) with its face
+/// centred at `center_cm`, normal to z, for a field of `field_cm` at `fsd_cm`, in a problem's
+/// geometry (the plane must lie inside its world).
+#[allow(clippy::too_many_arguments)]
+pub fn detector_scorer(
+    d: &super::format::Detector,
+    center_cm: Vec3,
+    field_cm: [f64; 2],
+    fsd_cm: f64,
+    fdd_cm: f64,
+    geometry: &crate::transport::Geometry,
+    materials: &[crate::physics::xs::MaterialXs],
+    source: &crate::source::Source,
+    options: &crate::physics::PhysicsOptions,
+) -> Result<DetectorScorer, DosimetryError> {
+    use crate::score::detector::{DetectorSpec, LayerResponse, Response};
+    let lib = |n: &str| dosemill_xsdata::library::lookup(n).map_err(|e| DosimetryError::Material(e.to_string()));
+    let table = |n: &str| -> Result<crate::physics::xs::MaterialXs, DosimetryError> {
+        let m = lib(n)?;
+        crate::physics::xs::MaterialXs::new(m.name(), m.density_g_cm3(), m.composition(), options).map_err(|e| DosimetryError::Material(e.to_string()))
+    };
+    let layer = LayerResponse::new(&lib(&d.material)?, d.thickness_mm / 10.0, options, source.spectrum.max_kev()).map_err(|e| DosimetryError::Invalid(format!("detector layer: {e}")))?;
+    let size = [face_side_cm(field_cm[0], fsd_cm, fdd_cm), face_side_cm(field_cm[1], fsd_cm, fdd_cm)];
+    let pixels = [(size[0] / PIXEL_PITCH_CM).round() as usize, (size[1] / PIXEL_PITCH_CM).round() as usize];
+    let mut spec = DetectorSpec::new(center_cm, 2, size, pixels, Response::Absorbed(layer));
+    if let Some(ratio) = d.grid_ratio {
+        let g = crate::score::grid::GridModel::new(
+            ratio,
+            d.grid_strips_per_cm.unwrap_or(GRID_STRIPS_PER_CM),
+            d.grid_strip_width_mm.unwrap_or(GRID_STRIP_WIDTH_MM) / 10.0,
+            Some(fdd_cm),
+            table("Pb")?,
+            table(d.grid_interspace.as_deref().unwrap_or(GRID_INTERSPACE))?,
+        )
+        .map_err(|e| DosimetryError::Invalid(format!("anti-scatter grid: {e}")))?;
+        spec.grid = Some(g);
+    }
+    DetectorScorer::new(spec, geometry, materials, source, options).map_err(|e| DosimetryError::Invalid(format!("detector: {e}")))
 }

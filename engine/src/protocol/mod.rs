@@ -161,14 +161,14 @@ pub enum EvalError {
         message: String,
     },
     /// Monte Carlo part.
-    #[error("exam `{exam}` (line {line}): {source}")]
+    #[error("exam `{exam}` (line {line}): {cause}")]
     Dosimetry {
         /// Exam.
         exam: String,
         /// Line.
         line: usize,
-        /// Cause.
-        source: dosimetry::DosimetryError,
+        /// Cause (its text is part of this error's message, so it is not a separate source).
+        cause: dosimetry::DosimetryError,
     },
 }
 
@@ -242,7 +242,7 @@ pub fn key_part(name: &str) -> String {
 /// Evaluates one exam of the protocol read from `file` (voxel decks resolve against it).
 pub fn evaluate_exam(file: &str, e: &Exam, plan: &RunPlan) -> Result<ExamResult, EvalError> {
     let tube_err = |m: String| EvalError::Tube { exam: e.name.clone(), line: e.line, message: m };
-    let dos_err = |source| EvalError::Dosimetry { exam: e.name.clone(), line: e.line, source };
+    let dos_err = |cause| EvalError::Dosimetry { exam: e.name.clone(), line: e.line, cause };
     let options = SpectrumOptions { distance_cm: OUTPUT_DISTANCE_CM, ..SpectrumOptions::default() };
     let s = compute_spectrum(&tube_of(e), &options).map_err(|x| tube_err(x.to_string()))?;
     let q = BeamQuality::of(&s).map_err(|x| tube_err(x.to_string()))?;
@@ -256,6 +256,7 @@ pub fn evaluate_exam(file: &str, e: &Exam, plan: &RunPlan) -> Result<ExamResult,
     let pdd: Vec<Estimate>;
     let depth_media: Vec<String>;
     let histories: (u64, u64);
+    let mut imaging = None;
     let spectrum = tube_energy_spectrum(&s).map_err(dos_err)?;
     let field = Field::Rectangle { width_cm: e.field_cm[0], height_cm: e.field_cm[1] };
     let ds: Vec<f64> = DEPTHS_CM.iter().copied().filter(|d| *d <= e.patient.thickness_cm()).collect();
@@ -270,6 +271,7 @@ pub fn evaluate_exam(file: &str, e: &Exam, plan: &RunPlan) -> Result<ExamResult,
                 histories: plan.histories,
                 seed: plan.seed,
                 threads: plan.threads,
+                detector: e.detector.clone(),
             };
             let r = voxel::evaluate_voxel(resolved, *thickness_cm, &beam).map_err(|x| match x {
                 voxel::VoxelPatientError::Dosimetry(d) => dos_err(d),
@@ -291,6 +293,7 @@ pub fn evaluate_exam(file: &str, e: &Exam, plan: &RunPlan) -> Result<ExamResult,
             pdd = r.pdd_percent.clone();
             depth_media = r.depth_media.clone();
             histories = r.histories;
+            imaging = r.imaging;
         }
         Patient::Slab { material, thickness_cm, lateral_cm } => {
             let lib = |n: &str| dosemill_xsdata::library::lookup(n).map_err(|x| dos_err(dosimetry::DosimetryError::Material(x.to_string())));
@@ -321,30 +324,26 @@ pub fn evaluate_exam(file: &str, e: &Exam, plan: &RunPlan) -> Result<ExamResult,
     let mut detector_deck = None;
     let mut fdd = None;
     if let Some(d) = &e.detector {
-        fdd = Some(e.fdd_cm());
-        match &e.patient {
-            Patient::VoxelDeck { .. } => {
-                not_evaluated.push("detector: the scatter-to-primary ratio is computed for slab patients only in this version (a voxel patient's detector is not scored)".into());
-            }
-            Patient::Slab { .. } => {
-                let r = imaging::evaluate_detector(e, plan.histories, plan.seed.wrapping_add(2), plan.threads).map_err(dos_err)?;
-                let layer = format!("{} mm {}", d.thickness_mm, d.material);
-                let with = if d.grid_ratio.is_some() { "with grid" } else { "no grid" };
-                figures.push(compare("focus_detector_distance", "Focus–detector distance", "cm", Estimate::exact(r.fdd_cm), None, None, tol));
-                figures.push(compare("spr", &format!("Scatter-to-primary ratio, central 5 × 5 cm at the detector ({layer} absorbed signal, {with}; noiseless primary)"), "1", r.spr, e.stated.spr, e.reference.spr, tol));
-                figures.push(compare("spr_mc_primary", "SPR with the Monte Carlo primary (check)", "1", r.spr_mc_primary, None, None, tol));
-                figures.push(compare("scatter_fraction", "Scatter fraction S/(S+P), central 5 × 5 cm", "1", r.scatter_fraction, None, None, tol));
-                figures.push(compare("primary_mc_over_deterministic", "Primary signal, Monte Carlo / ray traced (check, expect 1)", "1", r.primary_mc_over_deterministic, None, None, tol));
-                if let Some(g) = &r.grid {
-                    figures.push(compare("spr_no_grid", "SPR without the grid (same run)", "1", g.spr_no_grid, None, None, tol));
-                    figures.push(compare("grid_primary_transmission", "Grid primary transmission T_p", "1", g.primary_transmission, None, None, tol));
-                    figures.push(compare("grid_scatter_transmission", "Grid scatter transmission T_s (σ upper bound)", "1", g.scatter_transmission, None, None, tol));
-                    figures.push(compare("grid_contrast_improvement_factor", "Grid contrast improvement factor K", "1", g.contrast_improvement_factor, None, None, tol));
-                }
-                detector_histories = r.histories;
-                detector_deck = Some(r.deck);
-            }
+        let r = match imaging {
+            Some(r) => r,
+            None => imaging::evaluate_detector(e, plan.histories, plan.seed.wrapping_add(2), plan.threads).map_err(dos_err)?,
+        };
+        let layer = format!("{} mm {}", d.thickness_mm, d.material);
+        let with = if d.grid_ratio.is_some() { "with grid" } else { "no grid" };
+        fdd = Some(r.fdd_cm);
+        figures.push(compare("focus_detector_distance", "Focus–detector distance", "cm", Estimate::exact(r.fdd_cm), None, None, tol));
+        figures.push(compare("spr", &format!("Scatter-to-primary ratio, central 5 × 5 cm at the detector ({layer} absorbed signal, {with}; noiseless primary)"), "1", r.spr, e.stated.spr, e.reference.spr, tol));
+        figures.push(compare("spr_mc_primary", "SPR with the Monte Carlo primary (check)", "1", r.spr_mc_primary, None, None, tol));
+        figures.push(compare("scatter_fraction", "Scatter fraction S/(S+P), central 5 × 5 cm", "1", r.scatter_fraction, None, None, tol));
+        figures.push(compare("primary_mc_over_deterministic", "Primary signal, Monte Carlo / ray traced (check, expect 1)", "1", r.primary_mc_over_deterministic, None, None, tol));
+        if let Some(g) = &r.grid {
+            figures.push(compare("spr_no_grid", "SPR without the grid (same run)", "1", g.spr_no_grid, None, None, tol));
+            figures.push(compare("grid_primary_transmission", "Grid primary transmission T_p", "1", g.primary_transmission, None, None, tol));
+            figures.push(compare("grid_scatter_transmission", "Grid scatter transmission T_s (σ upper bound)", "1", g.scatter_transmission, None, None, tol));
+            figures.push(compare("grid_contrast_improvement_factor", "Grid contrast improvement factor K", "1", g.contrast_improvement_factor, None, None, tol));
         }
+        detector_histories = r.histories;
+        detector_deck = r.deck;
     }
     Ok(ExamResult {
         exam: e.clone(),
@@ -380,7 +379,7 @@ pub fn evaluate(p: &Protocol, plan: &RunPlan) -> Result<Vec<ExamResult>, EvalErr
 pub const LIMITS: [&str; 7] = [
     "Kerma approximation: secondary electrons deposit their energy where they are set in motion; doses are collision kerma. Near interfaces and for the first millimetre below the surface this differs from absorbed dose.",
     "Patient model: a homogeneous slab of one library material with flat entrance surface, or the grid of a voxel-phantom deck (beam along +z through the grid centre, skin at the first voxel denser than 0.01 g/cm³ on that axis); in vacuum, no table or couch. Region doses of voxel phantoms are track-length kerma averaged over each labelled region; the phantom's fill region is not reported.",
-    "Detector: a flat, non-perturbing plane at the focus–detector distance (patient directly on it unless detector.gap_cm is given), signal = energy absorbed in the named layer (first-interaction approximation); anti-scatter grid as a focused linear lamella model averaged over its period (default 40 lead lamellae per cm, 0.036 mm thick, aluminium interspace; no cover plates). No blur, noise, housing or back-scatter from behind the detector. SPR is given for slab patients only.",
+    "Detector: a flat, non-perturbing plane at the focus–detector distance (patient directly on it unless detector.gap_cm is given), signal = energy absorbed in the named layer (first-interaction approximation); anti-scatter grid as a focused linear lamella model averaged over its period (default 40 lead lamellae per cm, 0.036 mm thick, aluminium interspace; no cover plates). No blur, noise, housing or back-scatter from behind the detector. Behind a voxel phantom the detector face is centred on the beam axis, gap_cm behind the exit surface on that axis.",
     "SPR is the mean scatter signal over the mean noiseless (ray-traced) primary signal in the central 5 × 5 cm of the detector; its σ is from the scatter alone. The scatter-transmission σ ignores the correlation of scatter with and without the grid (upper bound).",
     "Tube output normalisation: incident air kerma is the tube model's air kerma per mAs at 1 m (air path 1 m) scaled by mAs and the inverse square law; air attenuation between 1 m and the skin, heel effect, off-axis variation and the real tube's output calibration are not modelled. Measured output should replace it where available.",
     "Entrance figures are scored on a disc on the central axis (radius a fifth of the shorter field side, at most 4 cm); the backscatter factor is its average over the disc, slightly below the value at the centre point.",

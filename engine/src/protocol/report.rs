@@ -367,7 +367,11 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
                 ),
                 None => "no grid".to_string(),
             };
-            let run = if r.detector_deck.is_some() { format!("{} histories, analog; the generated deck is stored in protocol.h5 (attribute detector_deck of this exam)", r.detector_histories) } else { "not run".to_string() };
+            let run = if r.detector_deck.is_some() {
+                format!("separate analog run of {} histories; the generated deck is stored in protocol.h5 (attribute detector_deck of this exam)", r.detector_histories)
+            } else {
+                format!("scored in the phantom run ({} histories, analog), face centred on the beam axis", r.detector_histories)
+            };
             let _ = writeln!(
                 h,
                 "<p>Detector: {} mm {} at {} cm from the focus ({} cm behind the exit surface), {grid}; {run}.</p>",
@@ -407,7 +411,7 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
     for l in LIMITS {
         let _ = write!(h, "<li>{}</li>", esc(l));
     }
-    h.push_str("</ul>\n<h2>Method</h2><p>IAK = tube output at 1 m × mAs × (100 cm / FSD)². B = K<sub>air</sub>(entrance, phantom present) / K<sub>air</sub>(same point, free in air), two independent Monte Carlo runs, uncertainties combined in quadrature. ESAK = IAK × B. ESD = IAK × K<sub>medium</sub>(entrance, phantom present)/K<sub>air</sub>(free in air), i.e. ESAK × (μen/ρ)<sub>medium/air</sub> averaged over the energy-fluence spectrum at the surface with the phantom present (incident and backscattered photons). Depth dose: IAK × K<sub>phantom medium</sub>(depth)/K<sub>air</sub>(free in air) on the central axis. PDD and μen-ratio uncertainties ignore the positive correlation within one run (upper bounds). Voxel phantoms: the same figures on the central axis through the grid centre (dose to the local voxel medium), and the mean dose of each labelled region = IAK × (track-length energy in the region / region mass) / K<sub>air</sub>(free in air). SPR: a separate analog run of the exam with the detector at the focus–detector distance; scatter (all photons that interacted) over the ray-traced primary, both as energy absorbed in the detector layer behind the grid, mean over the central 5 × 5 cm.</p>\n</body></html>\n");
+    h.push_str("</ul>\n<h2>Method</h2><p>IAK = tube output at 1 m × mAs × (100 cm / FSD)². B = K<sub>air</sub>(entrance, phantom present) / K<sub>air</sub>(same point, free in air), two independent Monte Carlo runs, uncertainties combined in quadrature. ESAK = IAK × B. ESD = IAK × K<sub>medium</sub>(entrance, phantom present)/K<sub>air</sub>(free in air), i.e. ESAK × (μen/ρ)<sub>medium/air</sub> averaged over the energy-fluence spectrum at the surface with the phantom present (incident and backscattered photons). Depth dose: IAK × K<sub>phantom medium</sub>(depth)/K<sub>air</sub>(free in air) on the central axis. PDD and μen-ratio uncertainties ignore the positive correlation within one run (upper bounds). Voxel phantoms: the same figures on the central axis through the grid centre (dose to the local voxel medium), and the mean dose of each labelled region = IAK × (track-length energy in the region / region mass) / K<sub>air</sub>(free in air). SPR: a separate analog run of the exam with the detector at the focus–detector distance (voxel patients: the detector is scored in the phantom run); scatter (all photons that interacted) over the ray-traced primary, both as energy absorbed in the detector layer behind the grid, mean over the central 5 × 5 cm.</p>\n</body></html>\n");
     Ok(h)
 }
 

@@ -13,7 +13,9 @@
 //! the entrance disc, twice the histories — and "phantom": air, water and soft-tissue kerma on
 //! the entrance disc (incident + backscatter), kerma of the local voxel medium on discs at the
 //! central-axis depths, and the track-length dose in every labelled region. All figures are
-//! per history, turned into exam figures by IAK / K_air(free).
+//! per history, turned into exam figures by IAK / K_air(free). A detector, if the exam has one,
+//! is scored in the phantom run: face normal to z on the beam axis, `gap_cm` (default: just)
+//! behind the phantom's exit surface on the axis, so FDD = FSD + axis thickness + gap.
 
 use std::sync::Arc;
 
@@ -66,6 +68,9 @@ pub struct VoxelBeam {
     pub seed: u64,
     /// Threads.
     pub threads: usize,
+    /// Detector behind the patient, scored in the phantom run (face normal to z, centred on the
+    /// beam axis, `gap_cm` behind the phantom's exit surface on the axis).
+    pub detector: Option<super::format::Detector>,
 }
 
 /// Figures of a voxel patient, per source history (Gy) or per unit free-in-air air kerma.
@@ -97,6 +102,8 @@ pub struct VoxelResult {
     pub regions: Vec<(String, f64, Estimate)>,
     /// Histories (free, phantom).
     pub histories: (u64, u64),
+    /// Detector figures, with a detector.
+    pub imaging: Option<super::imaging::ImagingResult>,
 }
 
 fn deck_error(path: &str, errs: &[deck::DeckError]) -> VoxelPatientError {
@@ -208,6 +215,33 @@ pub fn evaluate_voxel(path: &str, thickness_cm: f64, beam: &VoxelBeam) -> Result
     }
     let pk = PlaneKerma::new([cx, cy], beam.disc_radius_cm, planes, media.clone()).map_err(|e| DosimetryError::Material(e.to_string()))?;
     problem.scorers.push(Scorer::PlaneKerma(pk));
+    let mut fdd = None;
+    if let Some(det) = &beam.detector {
+        // The face behind the exit surface on the axis (a zero gap: just behind it, as for slabs);
+        // the world is stretched to hold it and the whole face (vacuum: nothing changes for the
+        // transport or the other scores).
+        let gap = det.gap();
+        let z_face = ((skin + axis_t + if gap > 0.0 { gap } else { super::imaging::FACE_OFFSET_CM }) * 1e6).round() / 1e6;
+        // Nominal focus–detector distance (without the 0.001 cm offset of a zero gap), as for slabs.
+        let d_fdd = beam.fsd_cm + axis_t + gap;
+        let [fw, fh] = match beam.field {
+            Field::Rectangle { width_cm, height_cm } => [width_cm, height_cm],
+            Field::Circle { radius_cm } => [2.0 * radius_cm, 2.0 * radius_cm],
+        };
+        let half = [0.5 * super::imaging::face_side_cm(fw, beam.fsd_cm, d_fdd) + 1.0, 0.5 * super::imaging::face_side_cm(fh, beam.fsd_cm, d_fdd) + 1.0];
+        let Geometry::Voxels(w) = &problem.geometry else { unreachable!("voxel geometry") };
+        let wb = w.grid.world().bounds;
+        let bounds = dosemill_geometry::Aabb::new(
+            Vec3::new(wb.min_cm.x.min(cx - half[0]), wb.min_cm.y.min(cy - half[1]), wb.min_cm.z),
+            Vec3::new(wb.max_cm.x.max(cx + half[0]), wb.max_cm.y.max(cy + half[1]), wb.max_cm.z.max(z_face + 10.0)),
+        );
+        let grid2 = (*w.grid).clone().with_world(dosemill_geometry::World { medium: None, bounds }).map_err(|e| DosimetryError::Geometry(e.to_string()))?;
+        let vw = crate::transport::VoxelWorld { tracking: w.tracking, grid: Arc::new(grid2), majorant: w.majorant.clone(), labels: w.labels.clone() };
+        problem.geometry = Geometry::Voxels(Box::new(vw));
+        let scorer = super::imaging::detector_scorer(det, Vec3::new(cx, cy, z_face), [fw, fh], beam.fsd_cm, d_fdd, &problem.geometry, &problem.materials, &problem.source, &problem.options)?;
+        problem.scorers.push(Scorer::Detector(Box::new(scorer)));
+        fdd = Some(d_fdd);
+    }
 
     // Free in air: the same beam (focus at the origin, field at FSD), no phantom.
     let air = lib("air")?;
@@ -261,6 +295,10 @@ pub fn evaluate_voxel(path: &str, thickness_cm: f64, beam: &VoxelBeam) -> Result
             regions.push((name.clone(), mass[k], dose.ratio(k_free)));
         }
     }
+    let imaging = match (fdd, full.scorers.get(2)) {
+        (Some(f), Some(Scorer::Detector(det))) => Some(super::imaging::summarise(det, full.histories, f)?),
+        _ => None,
+    };
     let names: Vec<String> = depth_media.iter().map(|&m| materials[m].name().to_string()).collect();
     Ok(VoxelResult {
         deck: path.to_string(),
@@ -276,5 +314,6 @@ pub fn evaluate_voxel(path: &str, thickness_cm: f64, beam: &VoxelBeam) -> Result
         pdd_percent: pdd,
         regions,
         histories: (free.histories, full.histories),
+        imaging,
     })
 }

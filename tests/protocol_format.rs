@@ -17,7 +17,7 @@ fn toml_and_csv_demo_protocols_agree() {
     let b = parse_csv(&c, "protocol_demo.csv").unwrap();
     assert!(a.demo_data && b.demo_data, "demo protocols must be marked as invented demo data");
     assert_eq!(a.title, b.title);
-    assert_eq!(a.exams.len(), 3);
+    assert_eq!(a.exams.len(), 4);
     assert_eq!(a.exams.len(), b.exams.len());
     for (x, y) in a.exams.iter().zip(&b.exams) {
         assert_eq!(x.name, y.name);
@@ -30,12 +30,15 @@ fn toml_and_csv_demo_protocols_agree() {
         assert_eq!(x.stated, y.stated);
         assert_eq!(x.reference, y.reference);
         assert_eq!(x.tolerance_percent, y.tolerance_percent);
-        assert_eq!(x.detector.as_ref().map(|d| &d.material), y.detector.as_ref().map(|d| &d.material));
+        assert_eq!(x.detector, y.detector);
+        assert_eq!(x.patient, y.patient);
     }
     // Focus–detector distance minus the patient thickness is the focus–skin distance.
     assert_eq!(a.exams[1].distance, Distance::FocusDetector(180.0));
     assert_eq!(a.exams[1].fsd_cm(), 158.0);
     assert!(matches!(&a.exams[0].patient, Patient::Slab { material, .. } if material == "water"));
+    assert_eq!(a.exams[1].detector.as_ref().and_then(|d| d.grid_ratio), Some(10.0));
+    assert!(matches!(&a.exams[3].patient, Patient::VoxelDeck { path, .. } if path == "torso_phantom.toml"));
 }
 
 const GOOD: &str = r#"[protocol]

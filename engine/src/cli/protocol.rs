@@ -52,6 +52,10 @@ pub fn run(args: Args) -> anyhow::Result<i32> {
     }
     let threads = args.threads.unwrap_or_else(|| std::thread::available_parallelism().map(|n| n.get()).unwrap_or(1));
     let plan = RunPlan { histories, seed: args.seed, threads };
+    if let Err(e) = protocol::check_inputs(&p) {
+        eprintln!("dosemill: {e}");
+        return Ok(super::EXIT_BAD_INPUT);
+    }
     let results = protocol::evaluate(&p, &plan)?;
     let w = report::write_all(&args.out, &p, &results, args.force)?;
     let mut flagged = 0;

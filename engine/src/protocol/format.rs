@@ -45,10 +45,12 @@ pub enum Patient {
         /// Lateral size (cm).
         lateral_cm: [f64; 2],
     },
-    /// A voxel phantom deck (accepted; evaluated once voxel transport is available).
+    /// A voxel phantom deck: its grid and region labels, with the exam's beam along +z.
     VoxelDeck {
-        /// Path of the deck.
+        /// Path of the deck as written in the protocol (relative to the protocol file).
         path: String,
+        /// The same path resolved against the protocol file's folder.
+        resolved: String,
         /// Patient thickness along the beam (cm), for the focus-to-skin distance.
         thickness_cm: f64,
     },
@@ -63,7 +65,9 @@ impl Patient {
     }
 }
 
-/// An image receptor behind the patient (accepted; scored once detector scoring is available).
+/// An image receptor behind the patient: a sensitive layer, optionally behind an anti-scatter
+/// grid. The detector face lies `gap_cm` behind the patient's exit surface (default 0: the
+/// patient lies on the detector).
 #[derive(Debug, Clone, PartialEq, Deserialize, serde::Serialize)]
 #[serde(deny_unknown_fields)]
 pub struct Detector {
@@ -73,6 +77,28 @@ pub struct Detector {
     pub thickness_mm: f64,
     /// Anti-scatter grid ratio, if any.
     pub grid_ratio: Option<f64>,
+    /// Grid lamellae per cm (default [`GRID_STRIPS_PER_CM`]).
+    pub grid_strips_per_cm: Option<f64>,
+    /// Lamella (lead strip) thickness (mm; default [`GRID_STRIP_WIDTH_MM`]).
+    pub grid_strip_width_mm: Option<f64>,
+    /// Interspace material of the grid (default [`GRID_INTERSPACE`]).
+    pub grid_interspace: Option<String>,
+    /// Gap between the patient's exit surface and the detector face (cm; default 0).
+    pub gap_cm: Option<f64>,
+}
+
+/// Default grid lamellae per cm (a common line density of stationary radiography grids).
+pub const GRID_STRIPS_PER_CM: f64 = 40.0;
+/// Default lamella thickness (mm) of lead.
+pub const GRID_STRIP_WIDTH_MM: f64 = 0.036;
+/// Default interspace material.
+pub const GRID_INTERSPACE: &str = "Al";
+
+impl Detector {
+    /// Gap between the exit surface and the detector face (cm).
+    pub fn gap(&self) -> f64 {
+        self.gap_cm.unwrap_or(0.0)
+    }
 }
 
 /// Figures stated for an exam (from a survey, a previous calculation, a vendor sheet …).
@@ -87,6 +113,8 @@ pub struct Stated {
     pub esd_mgy: Option<f64>,
     /// Medium of the stated entrance surface dose: "water" (default) or "soft_tissue".
     pub esd_medium: Option<String>,
+    /// Scatter-to-primary ratio at the detector (central ROI).
+    pub spr: Option<f64>,
 }
 
 /// Reference levels for an exam (e.g. local or national diagnostic reference levels).
@@ -97,6 +125,8 @@ pub struct ReferenceLevels {
     pub esak_mgy: Option<f64>,
     /// Entrance surface dose (mGy), same medium as the stated ESD.
     pub esd_mgy: Option<f64>,
+    /// Scatter-to-primary ratio at the detector (central ROI).
+    pub spr: Option<f64>,
 }
 
 /// One exam of a protocol.
@@ -131,11 +161,24 @@ pub struct Exam {
 }
 
 impl Exam {
+    /// Gap between the patient's exit surface and the detector (cm; 0 without a detector).
+    pub fn detector_gap_cm(&self) -> f64 {
+        self.detector.as_ref().map_or(0.0, Detector::gap)
+    }
+
     /// Focus-to-skin distance (cm).
     pub fn fsd_cm(&self) -> f64 {
         match self.distance {
             Distance::FocusSkin(d) => d,
-            Distance::FocusDetector(d) => d - self.patient.thickness_cm(),
+            Distance::FocusDetector(d) => d - self.patient.thickness_cm() - self.detector_gap_cm(),
+        }
+    }
+
+    /// Focus-to-detector distance (cm): as given, or focus–skin + thickness + gap.
+    pub fn fdd_cm(&self) -> f64 {
+        match self.distance {
+            Distance::FocusSkin(d) => d + self.patient.thickness_cm() + self.detector_gap_cm(),
+            Distance::FocusDetector(d) => d,
         }
     }
 }
@@ -317,8 +360,9 @@ fn resolve(c: &Checker, r: RawExam, default_tol: f64) -> Result<Exam, ProtocolEr
         (Some(d), None) => Distance::FocusSkin(c.range("focus_skin_cm", d, 10.0, 1000.0, "cm")?),
         (None, Some(d)) => {
             let d = c.range("focus_detector_cm", d, 10.0, 1000.0, "cm")?;
-            if d - thickness < 10.0 {
-                return Err(c.err("focus_detector_cm", format!("{d} cm leaves less than 10 cm from the focus to the skin of a {thickness} cm patient; check the distance")));
+            let gap = r.detector.as_ref().map_or(0.0, Detector::gap);
+            if d - thickness - gap < 10.0 {
+                return Err(c.err("focus_detector_cm", format!("{d} cm leaves less than 10 cm from the focus to the skin of a {thickness} cm patient ({gap} cm gap to the detector); check the distance")));
             }
             Distance::FocusDetector(d)
         }
@@ -329,7 +373,14 @@ fn resolve(c: &Checker, r: RawExam, default_tol: f64) -> Result<Exam, ProtocolEr
         c.range(k, v, 0.5, 60.0, "cm")?;
     }
     let patient = match (r.voxel_deck, r.patient_material) {
-        (Some(path), None) => Patient::VoxelDeck { path, thickness_cm: thickness },
+        (Some(path), None) => {
+            if path.trim().is_empty() {
+                return Err(c.err("patient.voxel_deck", "empty path; name a deck file with `[geometry] kind = \"voxels\"`, relative to the protocol file"));
+            }
+            let base = Path::new(c.file).parent().unwrap_or(Path::new(""));
+            let resolved = base.join(&path).display().to_string();
+            Patient::VoxelDeck { path, resolved, thickness_cm: thickness }
+        }
         (Some(_), Some(_)) => return Err(c.err("patient.voxel_deck", "give either patient material (slab) or voxel_deck, not both")),
         (None, m) => {
             let material = c.material("patient.material", m.as_deref().unwrap_or("water"))?;
@@ -343,13 +394,34 @@ fn resolve(c: &Checker, r: RawExam, default_tol: f64) -> Result<Exam, ProtocolEr
             Patient::Slab { material, thickness_cm: thickness, lateral_cm: lateral }
         }
     };
-    if let Some(d) = &r.detector {
-        c.material("detector.material", &d.material)?;
+    let mut detector = r.detector;
+    if let Some(d) = &mut detector {
+        d.material = c.material("detector.material", &d.material)?;
         c.range("detector.thickness_mm", d.thickness_mm, 1e-3, 100.0, "mm")?;
+        if let Some(g) = d.grid_ratio {
+            c.range("detector.grid_ratio", g, 1.0, 50.0, "")?;
+        }
+        let strips = c.range("detector.grid_strips_per_cm", d.grid_strips_per_cm.unwrap_or(GRID_STRIPS_PER_CM), 1.0, 200.0, "per cm")?;
+        let width = c.range("detector.grid_strip_width_mm", d.grid_strip_width_mm.unwrap_or(GRID_STRIP_WIDTH_MM), 1e-3, 1.0, "mm")?;
+        if width / 10.0 >= 1.0 / strips {
+            return Err(c.err("detector.grid_strip_width_mm", format!("{width} mm lamellae do not fit {strips} lamellae per cm; make them thinner or use fewer per cm")));
+        }
+        if let Some(m) = &d.grid_interspace {
+            d.grid_interspace = Some(c.material("detector.grid_interspace", m)?);
+        }
+        if d.grid_ratio.is_none() && (d.grid_strips_per_cm.is_some() || d.grid_strip_width_mm.is_some() || d.grid_interspace.is_some()) {
+            return Err(c.err("detector.grid_ratio", "grid details are given but no grid_ratio; add grid_ratio (e.g. 10) or remove the grid keys"));
+        }
+        c.range("detector.gap_cm", d.gap(), 0.0, 50.0, "cm")?;
     }
     c.positive_opt("stated.iak_mgy", r.stated.iak_mgy)?;
     c.positive_opt("stated.esak_mgy", r.stated.esak_mgy)?;
     c.positive_opt("stated.esd_mgy", r.stated.esd_mgy)?;
+    c.positive_opt("stated.spr", r.stated.spr)?;
+    c.positive_opt("reference_level.spr", r.reference.spr)?;
+    if detector.is_none() && (r.stated.spr.is_some() || r.reference.spr.is_some()) {
+        return Err(c.err("stated.spr", "an SPR is given but the exam has no detector; add detector = { material, thickness_mm } or remove the SPR"));
+    }
     let mut stated = r.stated;
     if let Some(m) = &stated.esd_medium {
         let name = c.material("stated.esd_medium", m)?;
@@ -371,7 +443,7 @@ fn resolve(c: &Checker, r: RawExam, default_tol: f64) -> Result<Exam, ProtocolEr
         distance,
         field_cm: r.field_cm,
         patient,
-        detector: r.detector,
+        detector,
         stated,
         reference: r.reference,
         tolerance_percent,
@@ -428,7 +500,7 @@ fn check_unique(exams: &[Exam], file: &str) -> Result<(), ProtocolError> {
 }
 
 /// CSV columns, in any order; the first row names them.
-pub const CSV_COLUMNS: [&str; 20] = [
+pub const CSV_COLUMNS: [&str; 25] = [
     "name",
     "kvp",
     "anode",
@@ -449,6 +521,11 @@ pub const CSV_COLUMNS: [&str; 20] = [
     "tolerance_percent",
     "detector_material",
     "detector_thickness_mm",
+    "detector_grid_ratio",
+    "detector_gap_cm",
+    "patient_voxel_deck",
+    "stated_spr",
+    "reference_spr",
 ];
 
 /// Splits one CSV line into (field, starting column) pairs; double quotes group commas.
@@ -537,7 +614,15 @@ pub fn parse_csv(text: &str, file: &str) -> Result<Protocol, ProtocolError> {
         }
         let name_col = get("name").map_or(1, |g| g.1);
         let detector = match get("detector_material") {
-            Some((m, _)) => Some(Detector { material: m.clone(), thickness_mm: num("detector_thickness_mm")?.unwrap_or(0.5), grid_ratio: None }),
+            Some((m, _)) => Some(Detector {
+                material: m.clone(),
+                thickness_mm: num("detector_thickness_mm")?.unwrap_or(0.5),
+                grid_ratio: num("detector_grid_ratio")?,
+                grid_strips_per_cm: None,
+                grid_strip_width_mm: None,
+                grid_interspace: None,
+                gap_cm: num("detector_gap_cm")?,
+            }),
             None => None,
         };
         let raw = RawExam {
@@ -552,10 +637,10 @@ pub fn parse_csv(text: &str, file: &str) -> Result<Protocol, ProtocolError> {
             patient_material: get("patient_material").map(|g| g.0.clone()),
             patient_thickness_cm: need("patient_thickness_cm")?,
             patient_lateral_cm: None,
-            voxel_deck: None,
+            voxel_deck: get("patient_voxel_deck").map(|g| g.0.clone()),
             detector,
-            stated: Stated { iak_mgy: num("stated_iak_mgy")?, esak_mgy: num("stated_esak_mgy")?, esd_mgy: num("stated_esd_mgy")?, esd_medium: get("esd_medium").map(|g| g.0.clone()) },
-            reference: ReferenceLevels { esak_mgy: num("reference_esak_mgy")?, esd_mgy: num("reference_esd_mgy")? },
+            stated: Stated { iak_mgy: num("stated_iak_mgy")?, esak_mgy: num("stated_esak_mgy")?, esd_mgy: num("stated_esd_mgy")?, esd_medium: get("esd_medium").map(|g| g.0.clone()), spr: num("stated_spr")? },
+            reference: ReferenceLevels { esak_mgy: num("reference_esak_mgy")?, esd_mgy: num("reference_esd_mgy")?, spr: num("reference_spr")? },
             tolerance_percent: num("tolerance_percent")?,
         };
         let c = Checker { file, line: line_no, column: name_col, prefix: String::new() };

@@ -129,6 +129,17 @@ pub fn result_file(p: &Protocol, results: &[ExamResult]) -> ResultFile {
         g.set_attr("hvl1_mm_al", r.hvl1_mm_al);
         g.set_attr("tube_output_ugy_per_mas_1m", r.output_ugy_per_mas_1m);
         g.set_attr("not_evaluated", r.not_evaluated.join("\n"));
+        g.set_attr("patient", patient_text(&r.exam.patient).as_str());
+        if let Some(f) = r.fdd_cm {
+            g.set_attr("focus_detector_cm", f);
+        }
+        if let Some(d) = &r.detector_deck {
+            g.set_attr("detector_deck", d.as_str());
+            g.set_attr("detector_histories", r.detector_histories as f64);
+        }
+        if !r.depth_media.is_empty() {
+            g.set_attr("depth_media", r.depth_media.join(","));
+        }
         for fig in &r.figures {
             let mut d = Dataset::f64_1d(&fig.key, vec![fig.computed.value], &fig.unit).with_attr("label", fig.label.as_str()).with_attr("status", fig.status.label());
             if let Some(s) = fig.stated {
@@ -148,6 +159,13 @@ pub fn result_file(p: &Protocol, results: &[ExamResult]) -> ResultFile {
         f.add_group(g);
     }
     f
+}
+
+fn patient_text(p: &super::format::Patient) -> String {
+    match p {
+        super::format::Patient::Slab { material, thickness_cm, lateral_cm } => format!("{material} slab {thickness_cm} cm thick, {} × {} cm", lateral_cm[0], lateral_cm[1]),
+        super::format::Patient::VoxelDeck { path, thickness_cm, .. } => format!("voxel phantom deck {path} ({thickness_cm} cm on the central axis)"),
+    }
 }
 
 /// Standard base64 (RFC 4648) of `bytes`.
@@ -257,14 +275,14 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
     for c in CAUTIONS {
         let _ = write!(h, "<li>{}</li>", esc(c));
     }
-    h.push_str("</ul></div>\n<h2>Summary</h2>\n<table><tr><th class=\"l\">exam</th><th>kV</th><th>mAs</th><th>FSD (cm)</th><th>HVL (mm Al)</th><th>IAK (mGy)</th><th>B</th><th>ESAK (mGy)</th><th>ESD water (mGy)</th><th class=\"l\">flags</th></tr>\n");
+    h.push_str("</ul></div>\n<h2>Summary</h2>\n<table><tr><th class=\"l\">exam</th><th>kV</th><th>mAs</th><th>FSD (cm)</th><th>HVL (mm Al)</th><th>IAK (mGy)</th><th>B</th><th>ESAK (mGy)</th><th>ESD water (mGy)</th><th>SPR</th><th class=\"l\">flags</th></tr>\n");
     for r in results {
         let g = |k: &str| r.figure(k).map_or("–".to_string(), |f| format!("{} ± {}", fmt_num(f.computed.value), fmt_num(f.computed.sigma)));
         let flags: Vec<String> = r.figures.iter().filter(|f| f.status.flagged() || f.reference_status.flagged()).map(|f| format!("{}: {}", f.key, if f.status.flagged() { f.status.label() } else { f.reference_status.label() })).collect();
         let cls = if flags.is_empty() { "" } else { " class=\"flag\"" };
         let _ = writeln!(
             h,
-            "<tr{cls}><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
+            "<tr{cls}><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
             esc(&r.exam.name),
             fmt_num(r.exam.kvp),
             fmt_num(r.exam.mas),
@@ -274,6 +292,7 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
             g("backscatter_factor"),
             g("esak"),
             g("esd_water"),
+            g("spr"),
             esc(&flags.join("; "))
         );
     }
@@ -299,10 +318,7 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
         let e = &r.exam;
         let _ = writeln!(h, "<h2>Exam {}: {}</h2>", i + 1, esc(&e.name));
         let filt: Vec<String> = e.filtration.iter().map(|(m, t)| format!("{t} mm {m}")).collect();
-        let patient = match &e.patient {
-            super::format::Patient::Slab { material, thickness_cm, lateral_cm } => format!("{material} slab {thickness_cm} cm thick, {} × {} cm", lateral_cm[0], lateral_cm[1]),
-            super::format::Patient::VoxelDeck { path, .. } => format!("voxel deck {path}"),
-        };
+        let patient = patient_text(&e.patient);
         let _ = writeln!(
             h,
             "<p>{} kV, {:?} anode, added filtration {}; {} mAs; focus–skin {} cm; field {} × {} cm at the skin; patient: {}. Tube output {} µGy/mAs at 1 m, first HVL {} mm Al, mean energy {} keV. Histories: {} free in air, {} with phantom. Tolerance {} %.</p>",
@@ -340,6 +356,42 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
             );
         }
         h.push_str("</table>\n");
+        if let (Some(d), Some(fdd)) = (&e.detector, r.fdd_cm) {
+            let grid = match d.grid_ratio {
+                Some(g) => format!(
+                    "anti-scatter grid ratio {g}, {} lamellae/cm of lead {} mm thick, {} interspace, focused at {} cm",
+                    fmt_num(d.grid_strips_per_cm.unwrap_or(super::format::GRID_STRIPS_PER_CM)),
+                    fmt_num(d.grid_strip_width_mm.unwrap_or(super::format::GRID_STRIP_WIDTH_MM)),
+                    d.grid_interspace.as_deref().unwrap_or(super::format::GRID_INTERSPACE),
+                    fmt_num(fdd)
+                ),
+                None => "no grid".to_string(),
+            };
+            let run = if r.detector_deck.is_some() {
+                format!("separate analog run of {} histories; the generated deck is stored in protocol.h5 (attribute detector_deck of this exam)", r.detector_histories)
+            } else {
+                format!("scored in the phantom run ({} histories, analog), face centred on the beam axis", r.detector_histories)
+            };
+            let _ = writeln!(
+                h,
+                "<p>Detector: {} mm {} at {} cm from the focus ({} cm behind the exit surface), {grid}; {run}.</p>",
+                fmt_num(d.thickness_mm),
+                esc(&d.material),
+                fmt_num(fdd),
+                fmt_num(d.gap()),
+            );
+        }
+        let regions: Vec<&super::Figure> = r.figures.iter().filter(|f| f.key.starts_with("region_dose_")).collect();
+        if !regions.is_empty() {
+            h.push_str("<h3>Region doses (voxel phantom)</h3>\n<table><tr><th class=\"l\">region</th><th>mass (g)</th><th>mean dose (mGy)</th><th>± 1σ</th><th>per mAs (mGy/mAs)</th></tr>\n");
+            for f in regions {
+                let k = &f.key["region_dose_".len()..];
+                let mass = r.figure(&format!("region_mass_{k}")).map_or(f64::NAN, |m| m.computed.value);
+                let name = f.label.rsplit_once("region ").map_or(k, |x| x.1.split(" (").next().unwrap_or(k));
+                let _ = writeln!(h, "<tr><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>", esc(name), fmt_num(mass), fmt_num(f.computed.value), fmt_num(f.computed.sigma), fmt_num(f.computed.value / e.mas));
+            }
+            h.push_str("</table>\n");
+        }
         for n in &r.not_evaluated {
             let _ = writeln!(h, "<p><em>Not evaluated:</em> {}</p>", esc(n));
         }
@@ -347,9 +399,10 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
             let pts: Vec<(f64, f64, f64)> = r.depths_cm.iter().zip(&r.depth_dose_mgy).map(|(z, d)| (*z, d.value, d.sigma)).collect();
             let bytes = draw_points(&format!("depth_dose_{i}"), &format!("Central-axis depth dose: {}", e.name), "depth (cm)", "dose (mGy)", &[("dose ± 1σ".into(), pts, BLUE)], true)?;
             let _ = writeln!(h, "<h3>Central-axis depth dose</h3>\n{}", img(&bytes, &format!("depth dose of {}", e.name)));
-            h.push_str("<table><tr><th>depth (cm)</th><th>dose (mGy)</th><th>± 1σ</th><th>PDD (%)</th><th>± 1σ</th></tr>\n");
+            h.push_str("<table><tr><th>depth (cm)</th><th class=\"l\">medium</th><th>dose (mGy)</th><th>± 1σ</th><th>PDD (%)</th><th>± 1σ</th></tr>\n");
             for (k, z) in r.depths_cm.iter().enumerate() {
-                let _ = writeln!(h, "<tr><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>", fmt_num(*z), fmt_num(r.depth_dose_mgy[k].value), fmt_num(r.depth_dose_mgy[k].sigma), fmt_num(r.pdd_percent[k].value), fmt_num(r.pdd_percent[k].sigma));
+                let medium = r.depth_media.get(k).map_or("", |m| m.as_str());
+                let _ = writeln!(h, "<tr><td>{}</td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>", fmt_num(*z), esc(medium), fmt_num(r.depth_dose_mgy[k].value), fmt_num(r.depth_dose_mgy[k].sigma), fmt_num(r.pdd_percent[k].value), fmt_num(r.pdd_percent[k].sigma));
             }
             h.push_str("</table>\n");
         }
@@ -358,7 +411,7 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
     for l in LIMITS {
         let _ = write!(h, "<li>{}</li>", esc(l));
     }
-    h.push_str("</ul>\n<h2>Method</h2><p>IAK = tube output at 1 m × mAs × (100 cm / FSD)². B = K<sub>air</sub>(entrance, phantom present) / K<sub>air</sub>(same point, free in air), two independent Monte Carlo runs, uncertainties combined in quadrature. ESAK = IAK × B. ESD = IAK × K<sub>medium</sub>(entrance, phantom present)/K<sub>air</sub>(free in air), i.e. ESAK × (μen/ρ)<sub>medium/air</sub> averaged over the energy-fluence spectrum at the surface with the phantom present (incident and backscattered photons). Depth dose: IAK × K<sub>phantom medium</sub>(depth)/K<sub>air</sub>(free in air) on the central axis. PDD and μen-ratio uncertainties ignore the positive correlation within one run (upper bounds).</p>\n</body></html>\n");
+    h.push_str("</ul>\n<h2>Method</h2><p>IAK = tube output at 1 m × mAs × (100 cm / FSD)². B = K<sub>air</sub>(entrance, phantom present) / K<sub>air</sub>(same point, free in air), two independent Monte Carlo runs, uncertainties combined in quadrature. ESAK = IAK × B. ESD = IAK × K<sub>medium</sub>(entrance, phantom present)/K<sub>air</sub>(free in air), i.e. ESAK × (μen/ρ)<sub>medium/air</sub> averaged over the energy-fluence spectrum at the surface with the phantom present (incident and backscattered photons). Depth dose: IAK × K<sub>phantom medium</sub>(depth)/K<sub>air</sub>(free in air) on the central axis. PDD and μen-ratio uncertainties ignore the positive correlation within one run (upper bounds). Voxel phantoms: the same figures on the central axis through the grid centre (dose to the local voxel medium), and the mean dose of each labelled region = IAK × (track-length energy in the region / region mass) / K<sub>air</sub>(free in air). SPR: a separate analog run of the exam with the detector at the focus–detector distance (voxel patients: the detector is scored in the phantom run); scatter (all photons that interacted) over the ray-traced primary, both as energy absorbed in the detector layer behind the grid, mean over the central 5 × 5 cm.</p>\n</body></html>\n");
     Ok(h)
 }
 

@@ -178,6 +178,8 @@ fn stops_at_a_target_uncertainty_independently_of_threads() {
     assert_eq!(a.attr("stop_reason").and_then(|v| v.as_str()), Some("target uncertainty reached"));
     let histories = match a.attr("histories") { Some(dosemill_engine::output::AttrValue::U64(h)) => *h, other => panic!("{other:?}") };
     assert!(histories < 5_000_000 && histories % 16_000 == 0, "stopped at a wave boundary: {histories}");
+    assert_eq!(b.attr("stop_reason").and_then(|v| v.as_str()), Some("target uncertainty reached"));
+    assert!(matches!(b.attr("histories"), Some(dosemill_engine::output::AttrValue::U64(h)) if *h == histories), "2 threads stopped after the same histories");
     let da = datasets(&files[0]);
     let db = datasets(&files[1]);
     for ((n, x), (_, y)) in da.iter().zip(&db) {

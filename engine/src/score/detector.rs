@@ -73,6 +73,7 @@
 //! followed.
 
 pub mod p2;
+pub mod sphrect;
 
 use super::grid::GridModel;
 use super::{InteractionSite, PhotonView, Tally};

@@ -147,8 +147,8 @@ fn compare(a: &RunResult, b: &RunResult, categories: &[usize]) {
 #[test]
 fn forced_detection_matches_analog_scatter_in_water() {
     let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10";
-    let (analog, sa) = batches(&problem(&deck(layers, false, "", "vacuum")), 150_000, 1);
-    let (forced, sf) = batches(&problem(&deck(layers, true, "", "vacuum")), 6_000, 2);
+    let (analog, sa) = batches(&problem(&deck(layers, false, "", "vacuum")), 600_000, 1);
+    let (forced, sf) = batches(&problem(&deck(layers, true, "", "vacuum")), 24_000, 2);
     compare(&analog, &forced, &[1, 2, 3, 5]);
     compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
     // The ROI mean of the forced estimate against the analog crossings of the same FD run.

@@ -819,62 +819,92 @@ impl DetectorScorer {
         mu_all(&problem.materials, kev, &mut mu_e);
         let su = ph.pos.axis(s.u_axis) - s.center_u;
         let sv = ph.pos.axis(s.v_axis) - s.center_v;
-        let nd = NextEvent { s, problem, ph, h, su, sv, cats, elems, a_inc: &a_inc, a_coh: &a_coh, mu_e: &mu_e, lines };
+        let p_coh: f64 = if s.options.rayleigh { (0..elems.len()).map(|c| shares[3 * c + 2]).sum() } else { 0.0 };
+        let nd = NextEvent { s, problem, ph, h, su, sv, cats, elems, a_inc: &a_inc, a_coh: &a_coh, mu_e: &mu_e, lines, weight, p_coh };
         // The ROI: one point, weight Ω_ROI.
         let [r_u0, r_u1, r_v0, r_v1] = s.roi_edges_cm;
         let roi = SphericalRect::new(r_u0 - su, r_u1 - su, r_v0 - sv, r_v1 - sv, h);
         if roi.solid_angle > 0.0 {
             let (x, y) = roi.sample(rng.uniform(), rng.uniform());
-            nd.point(tally, x, y, weight * roi.solid_angle / s.pixel_area_cm2, history);
+            nd.point(tally, x, y, 1.0 / roi.solid_angle, true, history);
         }
         // The rest of the face: four rectangles around the ROI (below, above, left, right), one
         // chosen with probability P_i ∝ its solid angle, a point uniform in solid angle in it;
         // weight Ω_i / P_i (= Ω_outer) per point, divided by the number of points.
         let n_out = s.spec.fd_outer_points;
-        if n_out == 0 {
-            return;
-        }
         let (hu, hv) = (0.5 * s.spec.size_cm[0], 0.5 * s.spec.size_cm[1]);
         let us = [-hu - su, r_u0 - su, r_u1 - su, hu - su];
         let vs = [-hv - sv, r_v0 - sv, r_v1 - sv, hv - sv];
-        let mut f = [[0.0; 4]; 4];
-        for (i, &u) in us.iter().enumerate() {
-            for (j, &v) in vs.iter().enumerate() {
-                f[i][j] = sphrect::corner(u, v, h);
-            }
-        }
         // (i0, i1, j0, j1) of the four pieces in the us × vs grid.
         const PIECES: [(usize, usize, usize, usize); 4] = [(0, 3, 0, 1), (0, 3, 2, 3), (0, 1, 1, 2), (2, 3, 1, 2)];
         let mut omega = [0.0; 4];
         let mut omega_sum = 0.0;
-        for (k, &(i0, i1, j0, j1)) in PIECES.iter().enumerate() {
-            if us[i1] > us[i0] && vs[j1] > vs[j0] {
-                omega[k] = (f[i1][j1] - f[i0][j1] - f[i1][j0] + f[i0][j0]).max(0.0);
+        if n_out > 0 {
+            let mut f = [[0.0; 4]; 4];
+            for (i, &u) in us.iter().enumerate() {
+                for (j, &v) in vs.iter().enumerate() {
+                    f[i][j] = sphrect::corner(u, v, h);
+                }
             }
-            omega_sum += omega[k];
+            for (k, &(i0, i1, j0, j1)) in PIECES.iter().enumerate() {
+                if us[i1] > us[i0] && vs[j1] > vs[j0] {
+                    omega[k] = (f[i1][j1] - f[i0][j1] - f[i1][j0] + f[i0][j0]).max(0.0);
+                }
+                omega_sum += omega[k];
+            }
         }
-        if omega_sum <= 0.0 {
-            return;
+        if omega_sum > 0.0 {
+            for _ in 0..n_out {
+                let pick = rng.uniform() * omega_sum;
+                let mut k = 0;
+                let mut cum = omega[0];
+                while k < 3 && (pick >= cum || omega[k] == 0.0) {
+                    k += 1;
+                    cum += omega[k];
+                }
+                if omega[k] == 0.0 {
+                    continue;
+                }
+                let (i0, i1, j0, j1) = PIECES[k];
+                let r = SphericalRect::new(us[i0], us[i1], vs[j0], vs[j1], h);
+                if r.solid_angle <= 0.0 {
+                    continue;
+                }
+                let (x, y) = r.sample(rng.uniform(), rng.uniform());
+                // Density of this technique: n_out · P_k / Ω_k (= n_out / Ω_outer).
+                nd.point(tally, x, y, n_out as f64 * (omega[k] / omega_sum) / r.solid_angle, true, history);
+            }
         }
-        for _ in 0..n_out {
-            let pick = rng.uniform() * omega_sum;
-            let mut k = 0;
-            let mut cum = omega[0];
-            while k < 3 && (pick >= cum || omega[k] == 0.0) {
-                k += 1;
-                cum += omega[k];
+        // Coherent scattering, second technique: a direction drawn from the coherent angular
+        // distribution itself (element ∝ P_c^coh, cos θ from its form-factor sampler), scoring
+        // the coherent part only. Both techniques are combined by the balance heuristic
+        // (module docs), which bounds the forward-peak contributions.
+        if nd.p_coh > 0.0 {
+            let pick = rng.uniform() * nd.p_coh;
+            let mut c = 0;
+            let mut cum = shares[2];
+            while c + 1 < elems.len() && (pick >= cum || shares[3 * c + 2] == 0.0) {
+                c += 1;
+                cum += shares[3 * c + 2];
             }
-            if omega[k] == 0.0 {
-                continue;
+            let Some(table) = material.components[c].rayleigh.as_ref() else { return };
+            let cos_theta = table.sample(kev, rng);
+            let dir = crate::physics::rotate(ph.dir, cos_theta, rng.azimuth());
+            let dn = dir.axis(s.n_axis) * s.facing;
+            if dn <= 0.0 {
+                return;
             }
-            let (i0, i1, j0, j1) = PIECES[k];
-            let r = SphericalRect::new(us[i0], us[i1], vs[j0], vs[j1], h);
-            if r.solid_angle <= 0.0 {
-                continue;
-            }
-            let (x, y) = r.sample(rng.uniform(), rng.uniform());
-            let p_pick = omega[k] / omega_sum;
-            nd.point(tally, x, y, weight * r.solid_angle / (p_pick * n_out as f64 * s.pixel_area_cm2), history);
+            let t = h / dn;
+            let (x, y) = (dir.axis(s.u_axis) * t, dir.axis(s.v_axis) * t);
+            let (du, dv) = (su + x, sv + y);
+            let d_sa = if du >= r_u0 && du < r_u1 && dv >= r_v0 && dv < r_v1 {
+                if roi.solid_angle > 0.0 { 1.0 / roi.solid_angle } else { 0.0 }
+            } else if omega_sum > 0.0 {
+                n_out as f64 / omega_sum
+            } else {
+                0.0
+            };
+            nd.point(tally, x, y, d_sa, false, history);
         }
     }
 }
@@ -896,13 +926,19 @@ struct NextEvent<'a> {
     a_coh: &'a [f64; MAX_COMPONENTS],
     mu_e: &'a [f64; MAX_MATERIALS],
     lines: &'a fluorescence::Emitted,
+    /// Weight of the photon at the site.
+    weight: f64,
+    /// Total coherent probability P^coh = Σ_c P_c^coh (0 without Rayleigh scattering).
+    p_coh: f64,
 }
 
 impl NextEvent<'_> {
     /// Scores the contributions towards the face point at offset (x, y) from the site's foot
-    /// point, with `geo` = w · (1 / sampling density in solid angle) / A_pixel.
+    /// point. `d_sa` is the density in solid angle (times its number of points) of the
+    /// solid-angle technique covering that point; `all` scores every part (a solid-angle
+    /// sample), otherwise the coherent part only (a sample of the coherent distribution).
     #[inline]
-    fn point(&self, tally: &mut Tally, x: f64, y: f64, geo: f64, history: u64) {
+    fn point(&self, tally: &mut Tally, x: f64, y: f64, d_sa: f64, all: bool, history: u64) {
         let s = self.s;
         let ph = self.ph;
         let (du, dv) = (self.su + x, self.sv + y);
@@ -933,9 +969,11 @@ impl NextEvent<'_> {
         let mut raw = [0.0; N_CAT];
         let cos_s = ph.dir.dot(dir).clamp(-1.0, 1.0);
         let kev = ph.kev;
+        let w_area = self.weight / s.pixel_area_cm2;
+        let geo = if all { w_area / d_sa } else { 0.0 };
         // Incoherent.
         let e_inc = kev / (1.0 + kev / ELECTRON_REST_KEV * (1.0 - cos_s));
-        if e_inc >= s.options.cutoff_kev {
+        if all && e_inc >= s.options.cutoff_kev {
             let kn = klein_nishina::dsigma_domega_cm2(kev, cos_s);
             let mut p = 0.0;
             for (c, &ei) in self.elems.iter().enumerate() {
@@ -954,14 +992,17 @@ impl NextEvent<'_> {
                 p += self.a_coh[c] * coherent_dsigma(kev, cos_s, s.norms[ei].element);
             }
             if p > 0.0 {
-                let v = geo * p * (-tau_at(kev, Some(self.mu_e))).exp() * s.spec.response.value(kev, cos_det);
+                // Balance heuristic: f / (d_sa + p_coh(Ω)), p_coh(Ω) = p / P^coh the sampled
+                // coherent density; the same for both techniques' samples.
+                let v = w_area * p / (d_sa + p / self.p_coh) * (-tau_at(kev, Some(self.mu_e))).exp() * s.spec.response.value(kev, cos_det);
                 raw[self.cats.1] += v;
                 val[self.cats.1] += v * DetectorScorer::grid_at(s, kev, du, dir);
             }
         }
         // Fluorescence emission (isotropic).
         let inv4pi = 1.0 / (4.0 * std::f64::consts::PI);
-        for &line in &self.lines.kev[..self.lines.count] {
+        let lines = if all { &self.lines.kev[..self.lines.count] } else { &[][..] };
+        for &line in lines {
             if line >= s.options.cutoff_kev {
                 let v = geo * inv4pi * (-tau_at(line, None)).exp() * s.spec.response.value(line, cos_det);
                 raw[CAT_FLUORESCENCE] += v;

@@ -68,7 +68,12 @@
 //! sum [`sphrect::solid_angle`]) and a point sampled uniformly in solid angle in it; the weight
 //! Ω_i^{sampler} / P_i (= Ω_outer up to rounding) divided by the number of points. The overall
 //! density is uniform in solid angle over the face outside the ROI, so every pixel's estimate is
-//! unbiased. The analog photon continues unchanged; in forced-detection mode the analog
+//! unbiased. With `fd_coherent_sampling` a coherent direction is also drawn from the coherent
+//! distribution itself, and the coherent part of every sample of both techniques is weighted by
+//! the balance heuristic f / (d_SA(Ω) + p_coh(Ω)) (Veach & Guibas, "Optimally combining sampling
+//! techniques for Monte Carlo rendering", SIGGRAPH 1995), d_SA the density (× points) of the
+//! solid-angle technique covering Ω, p_coh the mixture density sampled: unbiased, and the
+//! forward-peak contributions are bounded. The analog photon continues unchanged; in forced-detection mode the analog
 //! crossings of scattered photons are not added to the images (they would count the same photons
 //! twice) but are kept in the `analog_scatter_*` summary bins for comparison.
 //!
@@ -294,6 +299,10 @@ pub struct DetectorSpec {
     /// Forced-detection points per interaction site over the face outside the ROI (the ROI
     /// always gets one); 0 scores the ROI alone.
     pub fd_outer_points: usize,
+    /// Also draw one coherent direction per site from the form-factor distribution, combined
+    /// with the solid-angle points by the balance heuristic (bounds the Rayleigh forward-peak
+    /// contributions; lowers the variance of the Rayleigh images, costs ≈ 20 % more per site).
+    pub fd_coherent_sampling: bool,
     /// Sub-pixel points per axis of the deterministic primary (≥ 1).
     pub primary_subpixels: usize,
 }
@@ -315,6 +324,7 @@ impl DetectorSpec {
             forced_detection: false,
             roi_size_cm: [Self::DEFAULT_ROI_CM.min(size_cm[0]), Self::DEFAULT_ROI_CM.min(size_cm[1])],
             fd_outer_points: 1,
+            fd_coherent_sampling: false,
             primary_subpixels: 2,
         }
     }
@@ -819,7 +829,7 @@ impl DetectorScorer {
         mu_all(&problem.materials, kev, &mut mu_e);
         let su = ph.pos.axis(s.u_axis) - s.center_u;
         let sv = ph.pos.axis(s.v_axis) - s.center_v;
-        let p_coh: f64 = if s.options.rayleigh { (0..elems.len()).map(|c| shares[3 * c + 2]).sum() } else { 0.0 };
+        let p_coh: f64 = if s.options.rayleigh && s.spec.fd_coherent_sampling { (0..elems.len()).map(|c| shares[3 * c + 2]).sum() } else { 0.0 };
         let nd = NextEvent { s, problem, ph, h, su, sv, cats, elems, a_inc: &a_inc, a_coh: &a_coh, mu_e: &mu_e, lines, weight, p_coh };
         // The ROI: one point, weight Ω_ROI.
         let [r_u0, r_u1, r_v0, r_v1] = s.roi_edges_cm;
@@ -928,7 +938,8 @@ struct NextEvent<'a> {
     lines: &'a fluorescence::Emitted,
     /// Weight of the photon at the site.
     weight: f64,
-    /// Total coherent probability P^coh = Σ_c P_c^coh (0 without Rayleigh scattering).
+    /// Total coherent probability P^coh = Σ_c P_c^coh when coherent directions are also
+    /// sampled from their own distribution, else 0 (then the solid-angle points alone).
     p_coh: f64,
 }
 
@@ -993,8 +1004,10 @@ impl NextEvent<'_> {
             }
             if p > 0.0 {
                 // Balance heuristic: f / (d_sa + p_coh(Ω)), p_coh(Ω) = p / P^coh the sampled
-                // coherent density; the same for both techniques' samples.
-                let v = w_area * p / (d_sa + p / self.p_coh) * (-tau_at(kev, Some(self.mu_e))).exp() * s.spec.response.value(kev, cos_det);
+                // coherent density, the same for both techniques' samples (f / d_sa when the
+                // coherent technique is off).
+                let d_coh = if self.p_coh > 0.0 { p / self.p_coh } else { 0.0 };
+                let v = w_area * p / (d_sa + d_coh) * (-tau_at(kev, Some(self.mu_e))).exp() * s.spec.response.value(kev, cos_det);
                 raw[self.cats.1] += v;
                 val[self.cats.1] += v * DetectorScorer::grid_at(s, kev, du, dir);
             }

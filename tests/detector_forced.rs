@@ -143,7 +143,8 @@ fn compare(a: &RunResult, b: &RunResult, categories: &[usize]) {
     }
 }
 
-/// Water in vacuum: single Compton, single Rayleigh, multiple and total scatter images.
+/// Water in vacuum: single Compton, single Rayleigh, multiple and total scatter images, with the
+/// default next-event sampling and with coherent directions also drawn from their own law.
 #[test]
 fn forced_detection_matches_analog_scatter_in_water() {
     let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10";
@@ -151,6 +152,15 @@ fn forced_detection_matches_analog_scatter_in_water() {
     let (forced, sf) = batches(&problem(&deck(layers, true, "", "vacuum")), 24_000, 2);
     compare(&analog, &forced, &[1, 2, 3, 5]);
     compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
+    // The optional second technique for coherent directions (balance heuristic).
+    let mut p = problem(&deck(layers, true, "", "vacuum"));
+    match &mut p.scorers[0] {
+        Scorer::Detector(d) => std::sync::Arc::get_mut(&mut d.setup).expect("unshared set-up").spec.fd_coherent_sampling = true,
+        _ => panic!("not a detector"),
+    }
+    let (forced_coh, sc) = batches(&p, 24_000, 5);
+    compare(&analog, &forced_coh, &[2, 3, 5]);
+    compare_face_sums(&sa, &sc, &[2, 3, 5]);
     // The ROI mean of the forced estimate against the analog crossings of the same FD run.
     let s = detector(&forced.scorers[0]).summary(forced.histories);
     let z = (s.mean[summary::ROI_SCATTER] - s.mean[summary::ROI_SCATTER_ANALOG]) / s.sigma[summary::ROI_SCATTER_ANALOG];

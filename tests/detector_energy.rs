@@ -3,9 +3,8 @@
 //! leaves forward, scores (energy-fluence response × pixel area, summed) exactly the forward
 //! escaping energy — history by history for analog crossings (so to rounding), and within
 //! statistics for forced detection (an unbiased estimate of the same expectation). The forced
-//! detection check keeps a 3 cm vacuum gap: sites right at the face give next-event
-//! contributions ∝ 1/r² whose variance is unbounded; with the gap, photons missing the 10 m face
-//! (leaving within 0.35° of the face plane) carry a fraction of the energy far below 1e-3.
+//! detection check keeps a 3 cm vacuum gap, so that photons missing the 10 m face (leaving
+//! within 0.35° of the face plane) carry a fraction of the energy far below 1e-3.
 
 use dosemill_engine::score::detector::DetectorScorer;
 use dosemill_engine::score::Scorer;

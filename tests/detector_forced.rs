@@ -3,6 +3,12 @@
 //! pixel within their combined statistical uncertainties. The criterion: Σ z² over the pixels
 //! of each image below the 99.9th percentile of χ² with that many degrees of freedom (Wilson–
 //! Hilferty approximation, standard statistics texts), and every |z| < 4.5.
+//!
+//! Face sums per category (a biased estimator shows there first: a 1 % deficit spread over the
+//! pixels passes the per-pixel χ²): each estimator runs in 10 independent batches (own seeds);
+//! the σ of a face sum is the spread of its batch values, which includes the correlations
+//! between pixels of one history. Criterion: |z| < 4 (Student t with ≈ 18 degrees of freedom,
+//! two-sided p ≈ 10⁻³; standard tables).
 
 use dosemill_engine::score::detector::{summary, DetectorScorer, CATEGORIES};
 use dosemill_engine::score::Scorer;
@@ -61,6 +67,50 @@ fn go(p: &Problem, histories: u64, seed: u64) -> RunResult {
     run(p, &RunSettings { histories, seed, chunk_histories: 5_000, threads: 2, progress: false })
 }
 
+const BATCHES: u64 = 10;
+
+/// `BATCHES` runs of `histories` each (seeds `seed`, `seed + 100`, …): the merged result and,
+/// per category, the face sum of each batch.
+fn batches(p: &Problem, histories: u64, seed: u64) -> (RunResult, Vec<Vec<f64>>) {
+    let mut merged: Option<RunResult> = None;
+    let mut sums = vec![Vec::new(); CATEGORIES.len()];
+    for b in 0..BATCHES {
+        let r = go(p, histories, seed + 100 * b);
+        let d = detector(&r.scorers[0]);
+        for (c, s) in sums.iter_mut().enumerate() {
+            s.push(d.image(c, r.histories).0.iter().sum::<f64>());
+        }
+        match &mut merged {
+            None => merged = Some(r),
+            Some(m) => {
+                // Batches use different seeds: merge the tallies as independent histories.
+                for (a, b) in m.scorers.iter_mut().zip(&r.scorers) {
+                    a.tally_mut().merge(b.tally());
+                }
+                m.histories += r.histories;
+            }
+        }
+    }
+    (merged.expect("at least one batch"), sums)
+}
+
+/// Face sums of both estimators per category: batch means and |z| < 4 (module docs).
+fn compare_face_sums(a: &[Vec<f64>], b: &[Vec<f64>], categories: &[usize]) {
+    let stats = |v: &[f64]| {
+        let n = v.len() as f64;
+        let m = v.iter().sum::<f64>() / n;
+        let var = v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0);
+        (m, (var / n).sqrt())
+    };
+    for &c in categories {
+        let (ma, sa) = stats(&a[c]);
+        let (mb, sb) = stats(&b[c]);
+        let z = (ma - mb) / (sa * sa + sb * sb).sqrt();
+        eprintln!("{} face sum: analog {ma:.5e} ± {sa:.2e}, forced {mb:.5e} ± {sb:.2e}, forced/analog {:.4}, z = {z:.2}", CATEGORIES[c], mb / ma);
+        assert!(z.abs() < 4.0, "{} face sum: analog {ma} ± {sa} vs forced {mb} ± {sb} (z = {z:.2})", CATEGORIES[c]);
+    }
+}
+
 /// χ² 99.9th percentile for `k` degrees of freedom (Wilson–Hilferty).
 fn chi2_999(k: f64) -> f64 {
     let z = 3.090;
@@ -93,13 +143,24 @@ fn compare(a: &RunResult, b: &RunResult, categories: &[usize]) {
     }
 }
 
-/// Water in vacuum: single Compton, single Rayleigh, multiple and total scatter images.
+/// Water in vacuum: single Compton, single Rayleigh, multiple and total scatter images, with the
+/// default next-event sampling and with coherent directions also drawn from their own law.
 #[test]
 fn forced_detection_matches_analog_scatter_in_water() {
     let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10";
-    let analog = go(&problem(&deck(layers, false, "", "vacuum")), 1_500_000, 1);
-    let forced = go(&problem(&deck(layers, true, "", "vacuum")), 60_000, 2);
+    let (analog, sa) = batches(&problem(&deck(layers, false, "", "vacuum")), 600_000, 1);
+    let (forced, sf) = batches(&problem(&deck(layers, true, "", "vacuum")), 24_000, 2);
     compare(&analog, &forced, &[1, 2, 3, 5]);
+    compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
+    // The optional second technique for coherent directions (balance heuristic).
+    let mut p = problem(&deck(layers, true, "", "vacuum"));
+    match &mut p.scorers[0] {
+        Scorer::Detector(d) => std::sync::Arc::get_mut(&mut d.setup).expect("unshared set-up").spec.fd_coherent_sampling = true,
+        _ => panic!("not a detector"),
+    }
+    let (forced_coh, sc) = batches(&p, 24_000, 5);
+    compare(&analog, &forced_coh, &[2, 3, 5]);
+    compare_face_sums(&sa, &sc, &[2, 3, 5]);
     // The ROI mean of the forced estimate against the analog crossings of the same FD run.
     let s = detector(&forced.scorers[0]).summary(forced.histories);
     let z = (s.mean[summary::ROI_SCATTER] - s.mean[summary::ROI_SCATTER_ANALOG]) / s.sigma[summary::ROI_SCATTER_ANALOG];
@@ -113,7 +174,8 @@ fn forced_detection_matches_analog_scatter_in_water() {
 fn forced_detection_matches_analog_fluorescence_and_scatter_behind_csi() {
     let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 4\n\n[[geometry.layer]]\nmaterial = \"csi\"\nthickness_cm = 0.05";
     let extra = "response = \"absorbed\"\nlayer = { material = \"gd2o2s\", thickness_cm = 0.02 }";
-    let analog = go(&problem(&deck(layers, false, extra, "air")), 1_000_000, 3);
-    let forced = go(&problem(&deck(layers, true, extra, "air")), 60_000, 4);
+    let (analog, sa) = batches(&problem(&deck(layers, false, extra, "air")), 100_000, 3);
+    let (forced, sf) = batches(&problem(&deck(layers, true, extra, "air")), 6_000, 4);
     compare(&analog, &forced, &[4, 5]);
+    compare_face_sums(&sa, &sf, &[1, 2, 3, 4, 5]);
 }

@@ -220,6 +220,19 @@ impl MaterialXs {
         (j / 3, KINDS[j % 3])
     }
 
+    /// The probability of every channel (component `c`, kind `KINDS[k]` at index 3c + k) at a
+    /// looked-up energy, exactly as [`Self::sample_channel_at`] draws them (the last channel
+    /// takes the rest). `out` must hold at least `3 × components` values.
+    #[inline]
+    pub fn channel_probabilities_at(&self, at: Lookup, out: &mut [f64]) {
+        let mut lo = 0.0;
+        for (j, o) in out.iter_mut().enumerate().take(self.channels) {
+            let hi = if j + 1 == self.channels { 1.0f64.max(lo) } else { self.share_at(at, j) };
+            *o = (hi - lo).max(0.0);
+            lo = hi.max(lo);
+        }
+    }
+
     /// Chooses the interaction at `kev`: (component index, interaction).
     #[inline]
     pub fn sample_channel(&self, kev: f64, rng: &mut crate::rng::Stream) -> (usize, Interaction) {

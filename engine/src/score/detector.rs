@@ -37,27 +37,45 @@
 //! P_c^k = n_c σ_c^k / μ the probability that the interaction is of kind k on element c (the
 //! channel shares of the transport's own tables). Given kind k on c, the direction is drawn from
 //! p_c^k(Ω) = (dσ_c^k/dΩ) / σ_c^k. The expected number of photons scattered into dΩ around the
-//! direction Ω̂ of x and reaching x uncollided is then
+//! direction Ω̂ and reaching the face point x(Ω̂) uncollided is then
 //!
 //! ```text
 //! w · Σ_c [P_c^inc p_c^inc(Ω̂) e^{−τ(E')} R(E') + P_c^coh p_c^coh(Ω̂) e^{−τ(E)} R(E)] dΩ,
-//! dΩ = |cos θ_x| dA / r²,
 //! ```
 //!
 //! with E' the Compton energy at the scattering angle, τ the optical depth from the site to x
 //! and R the response (and grid transmission) of the pixel. σ_c^k in p_c^k is the integral of the
 //! same dσ/dΩ the sampler draws from (KN × S, or Z × KN for free electrons; Thomson × F²),
-//! tabulated at set-up by quadrature, so the density integrates to one exactly as sampled.
-//! Scattered photons below the energy cut-off are not counted (the transport absorbs them).
-//! At a photoelectric site a cascade is drawn with the scorer's own random stream (an
-//! independent sample of the same distribution as the transport's) and each emitted line scores
-//! its isotropic density 1/(4π). The point x is drawn uniformly in each stratum of a partition of
-//! the face (one point per stratum per site, the strata aligned so that the central region of
-//! interest is one stratum) and scored into the pixel holding it with weight A_stratum: the
-//! expected value of every pixel is the analog one, so the estimator is unbiased. The analog
-//! photon continues unchanged; in forced-detection mode the analog crossings of scattered photons
-//! are not added to the images (they would count the same photons twice) but are kept in the
-//! `analog_scatter_*` summary bins for comparison.
+//! tabulated at set-up by quadrature, so the density integrates to one exactly as sampled;
+//! P_c^k are the probabilities the transport's channel sampler uses
+//! ([`MaterialXs::channel_probabilities_at`]). Scattered photons below the energy cut-off are not
+//! counted (the transport absorbs them). At a photoelectric site a cascade is drawn with the
+//! scorer's own random stream (an independent sample of the same distribution as the
+//! transport's) and each emitted line scores its isotropic density 1/(4π).
+//!
+//! The direction Ω̂ is sampled uniformly in solid angle over a rectangle of the face as seen from
+//! the site (the area-preserving map of [`sphrect`], Ureña, Fajardo & King 2013). With density
+//! 1/Ω_rect the estimate of every pixel's expected signal is
+//!
+//! ```text
+//! w · Ω_rect · Σ_c[…](Ω̂) / A_pixel   into the pixel holding x(Ω̂),
+//! ```
+//!
+//! bounded for sites arbitrarily close to the face (no 1/r² factor). Per site: one point over
+//! the ROI rectangle (weight Ω_ROI) and `fd_outer_points` points (default 1) over the rest of
+//! the face, the four rectangles around the ROI (full-width bands below and above, pieces left
+//! and right): one piece i is chosen with probability P_i = Ω_i / Σ_j Ω_j (closed-form corner
+//! sum [`sphrect::solid_angle`]) and a point sampled uniformly in solid angle in it; the weight
+//! Ω_i^{sampler} / P_i (= Ω_outer up to rounding) divided by the number of points. The overall
+//! density is uniform in solid angle over the face outside the ROI, so every pixel's estimate is
+//! unbiased. With `fd_coherent_sampling` a coherent direction is also drawn from the coherent
+//! distribution itself, and the coherent part of every sample of both techniques is weighted by
+//! the balance heuristic f / (d_SA(Ω) + p_coh(Ω)) (Veach & Guibas, "Optimally combining sampling
+//! techniques for Monte Carlo rendering", SIGGRAPH 1995), d_SA the density (× points) of the
+//! solid-angle technique covering Ω, p_coh the mixture density sampled: unbiased, and the
+//! forward-peak contributions are bounded. The analog photon continues unchanged; in forced-detection mode the analog
+//! crossings of scattered photons are not added to the images (they would count the same photons
+//! twice) but are kept in the `analog_scatter_*` summary bins for comparison.
 //!
 //! The scorer's stream at a site is a pure function of (history, site position and energy), so a
 //! history still replays alone and the result does not depend on the thread count.
@@ -73,9 +91,11 @@
 //! followed.
 
 pub mod p2;
+pub mod sphrect;
 
 use super::grid::GridModel;
 use super::{InteractionSite, PhotonView, Tally};
+use sphrect::SphericalRect;
 use crate::physics::{fluorescence, klein_nishina, photoelectric, xs::MaterialXs, Interaction, PhysicsOptions};
 use crate::rng::{history_stream, Stream};
 use crate::source::{Emission, EnergySpectrum, Field, Source};
@@ -276,8 +296,13 @@ pub struct DetectorSpec {
     pub forced_detection: bool,
     /// Size [u, v] of the central region of interest (cm); rounded to whole pixels.
     pub roi_size_cm: [f64; 2],
-    /// Longest side of a forced-detection stratum outside the ROI (cm).
-    pub fd_max_stratum_cm: f64,
+    /// Forced-detection points per interaction site over the face outside the ROI (the ROI
+    /// always gets one); 0 scores the ROI alone.
+    pub fd_outer_points: usize,
+    /// Also draw one coherent direction per site from the form-factor distribution, combined
+    /// with the solid-angle points by the balance heuristic (bounds the Rayleigh forward-peak
+    /// contributions; lowers the variance of the Rayleigh images, costs ≈ 20 % more per site).
+    pub fd_coherent_sampling: bool,
     /// Sub-pixel points per axis of the deterministic primary (≥ 1).
     pub primary_subpixels: usize,
 }
@@ -286,8 +311,8 @@ impl DetectorSpec {
     /// Default ROI side (cm): 5 cm, or the face if smaller.
     pub const DEFAULT_ROI_CM: f64 = 5.0;
 
-    /// A spec with the engine's defaults for the ROI (5 × 5 cm), strata (a quarter of the face)
-    /// and sub-pixels (2 × 2).
+    /// A spec with the engine's defaults for the ROI (5 × 5 cm), forced-detection points (one in
+    /// the ROI and one over the rest of the face per site) and sub-pixels (2 × 2).
     pub fn new(center_cm: Vec3, normal_axis: usize, size_cm: [f64; 2], pixels: [usize; 2], response: Response) -> Self {
         Self {
             center_cm,
@@ -298,19 +323,20 @@ impl DetectorSpec {
             grid: None,
             forced_detection: false,
             roi_size_cm: [Self::DEFAULT_ROI_CM.min(size_cm[0]), Self::DEFAULT_ROI_CM.min(size_cm[1])],
-            fd_max_stratum_cm: 0.25 * size_cm[0].max(size_cm[1]),
+            fd_outer_points: 1,
+            fd_coherent_sampling: false,
             primary_subpixels: 2,
         }
     }
 }
 
-/// Angular-density normalisation of one element: σ^inc(E), σ^coh(E) (cm²) of the same dσ/dΩ
-/// the samplers draw from, integrated by quadrature.
+/// Angular-density normalisation of one element: 1/σ^inc(E), 1/σ^coh(E) (1/cm²) of the same
+/// dσ/dΩ the samplers draw from, integrated by quadrature.
 #[derive(Debug, Clone)]
 struct ElementNorm {
     element: &'static Element,
-    ln_inc: LnTable,
-    ln_coh: Option<LnTable>,
+    inv_inc: LnTable,
+    inv_coh: Option<LnTable>,
 }
 
 /// dσ^inc/dΩ per atom (cm²/sr) as sampled.
@@ -350,13 +376,13 @@ fn integrate_sphere(f: impl Fn(f64) -> f64) -> f64 {
 
 impl ElementNorm {
     fn new(element: &'static Element, options: &PhysicsOptions, e0: f64, e1: f64) -> Self {
-        let n = 160;
+        // 1/σ (1/cm²) on 1024 log-spaced energies, linear in ln E: σ is smooth (no edges in the
+        // scattering cross sections), interpolation error ≲ 1e-6 relative.
+        let n = 1024;
         let bound = options.bound_compton;
-        let ln_inc = LnTable::build(e0, e1, n, |e| {
-            integrate_sphere(|c| incoherent_dsigma(klein_nishina::dsigma_domega_cm2(e, c), e, c, element, bound)).ln()
-        });
-        let ln_coh = options.rayleigh.then(|| LnTable::build(e0, e1, n, |e| integrate_sphere(|c| coherent_dsigma(e, c, element)).ln()));
-        Self { element, ln_inc, ln_coh }
+        let inv_inc = LnTable::build(e0, e1, n, |e| 1.0 / integrate_sphere(|c| incoherent_dsigma(klein_nishina::dsigma_domega_cm2(e, c), e, c, element, bound)));
+        let inv_coh = options.rayleigh.then(|| LnTable::build(e0, e1, n, |e| 1.0 / integrate_sphere(|c| coherent_dsigma(e, c, element))));
+        Self { element, inv_inc, inv_coh }
     }
 }
 
@@ -378,9 +404,8 @@ pub struct DetectorSetup {
     /// ROI pixel ranges [iu0, iu1), [iv0, iv1).
     roi: [usize; 4],
     roi_pixels: usize,
-    /// Forced-detection strata edges (cm from the centre) along u and v.
-    strata_u: Vec<f64>,
-    strata_v: Vec<f64>,
+    /// ROI edges (cm from the centre): u0, u1, v0, v1.
+    roi_edges_cm: [f64; 4],
     /// Per problem material: indices into `norms` of its components.
     material_elements: Vec<Vec<usize>>,
     norms: Vec<ElementNorm>,
@@ -521,24 +546,6 @@ fn source_origin(source: &Source) -> Vec3 {
     }
 }
 
-/// Strata edges along one axis: the ROI [r0, r1] is one stratum; each side is split into
-/// pieces no longer than `max_cm`.
-fn strata_edges(lo: f64, r0: f64, r1: f64, hi: f64, max_cm: f64) -> Vec<f64> {
-    let mut e = vec![lo];
-    let side = |a: f64, b: f64, e: &mut Vec<f64>| {
-        if b - a > 1e-12 {
-            let n = ((b - a) / max_cm).ceil().max(1.0) as usize;
-            for k in 1..=n {
-                e.push(a + (b - a) * k as f64 / n as f64);
-            }
-        }
-    };
-    side(lo, r0, &mut e);
-    side(r0, r1, &mut e);
-    side(r1, hi, &mut e);
-    e
-}
-
 impl DetectorScorer {
     /// Builds a detector for a problem's geometry, materials, source and physics switches, and
     /// computes its deterministic primary image.
@@ -601,9 +608,7 @@ impl DetectorScorer {
         let (iv0, iv1) = roi_range(nv, pitch[1], spec.size_cm[1], spec.roi_size_cm[1]);
         let roi_pixels = (iu1 - iu0) * (iv1 - iv0);
         let (hu, hv) = (0.5 * spec.size_cm[0], 0.5 * spec.size_cm[1]);
-        let max_s = spec.fd_max_stratum_cm.max(pitch[0].max(pitch[1]));
-        let strata_u = strata_edges(-hu, -hu + iu0 as f64 * pitch[0], -hu + iu1 as f64 * pitch[0], hu, max_s);
-        let strata_v = strata_edges(-hv, -hv + iv0 as f64 * pitch[1], -hv + iv1 as f64 * pitch[1], hv, max_s);
+        let roi_edges_cm = [-hu + iu0 as f64 * pitch[0], -hu + iu1 as f64 * pitch[0], -hv + iv0 as f64 * pitch[1], -hv + iv1 as f64 * pitch[1]];
 
         // Forced-detection normalisation tables for every element of every material.
         let mut norms: Vec<ElementNorm> = Vec::new();
@@ -642,8 +647,7 @@ impl DetectorScorer {
             pixel_area_cm2,
             roi: [iu0, iu1, iv0, iv1],
             roi_pixels,
-            strata_u,
-            strata_v,
+            roi_edges_cm,
             material_elements,
             norms,
             options: *options,
@@ -774,117 +778,253 @@ impl DetectorScorer {
             return;
         }
         let ph = &site.photon;
+        let mut rng = site_stream(ph, history);
+        // Fluorescence lines of a photoelectric site, sampled with the scorer's own stream.
+        let mut lines = fluorescence::Emitted::default();
+        if site.kind == Interaction::Photoelectric && self.setup.options.fluorescence {
+            let shell = photoelectric::sample_shell(ph.kev, site.element, &mut rng);
+            lines = fluorescence::cascade(site.element, shell, &mut rng);
+        }
+        self.next_event(problem, ph, site.material as usize, ph.weight, &lines, &mut rng, history);
+    }
+
+    /// Next-event contributions of an interaction of `ph` (weight `weight`) at its position in
+    /// material `m`: one point uniform in solid angle over the ROI and `fd_outer_points` points
+    /// uniform in solid angle over the rest of the face (module docs).
+    #[inline]
+    #[allow(clippy::too_many_arguments)]
+    fn next_event(&mut self, problem: &Problem, ph: &PhotonView, m: usize, weight: f64, lines: &fluorescence::Emitted, rng: &mut Stream, history: u64) {
         let s = &*self.setup;
         let tally = &mut self.tally;
-        if (s.plane_cm - ph.pos.axis(s.n_axis)) * s.facing <= 0.0 {
+        // Distance to the plane, on the side the face looks at.
+        let h = (s.plane_cm - ph.pos.axis(s.n_axis)) * s.facing;
+        if h <= 0.0 {
             return;
         }
-        let cat_scatter = if ph.fluorescence {
+        let cats = if ph.fluorescence {
             (CAT_FLUORESCENCE, CAT_FLUORESCENCE)
         } else if ph.incoherent == 0 && ph.coherent == 0 {
             (CAT_COMPTON, CAT_RAYLEIGH)
         } else {
             (CAT_MULTIPLE, CAT_MULTIPLE)
         };
-        let mut rng = site_stream(ph, history);
-        let m = site.material as usize;
         let material = &problem.materials[m];
         let kev = ph.kev;
-        // Per component: P_c^k / σ_c^k (1/cm²) for incoherent and coherent.
+        // Per component: P_c^k / σ_c^k (1/cm²) for incoherent and coherent, P_c^k the transport's
+        // own channel probabilities.
         let mut a_inc = [0.0; MAX_COMPONENTS];
         let mut a_coh = [0.0; MAX_COMPONENTS];
-        let total = material.mu_rho_cm2_g(kev);
         let ln_kev = kev.ln();
         let elems = &s.material_elements[m];
+        let mut shares = [0.0; 3 * MAX_COMPONENTS];
+        material.channel_probabilities_at(material.lookup_ln(ln_kev), &mut shares[..3 * elems.len()]);
         for (c, &ei) in elems.iter().enumerate() {
             let norm = &s.norms[ei];
-            let p_inc = material.partial_mu_rho_cm2_g(kev, c, Interaction::Incoherent) / total;
-            a_inc[c] = p_inc / norm.ln_inc.at_ln(ln_kev).exp();
-            if let Some(coh) = &norm.ln_coh {
-                let p_coh = material.partial_mu_rho_cm2_g(kev, c, Interaction::Coherent) / total;
-                a_coh[c] = p_coh / coh.at_ln(ln_kev).exp();
+            a_inc[c] = shares[3 * c + 1] * norm.inv_inc.at_ln(ln_kev);
+            if let Some(coh) = &norm.inv_coh {
+                a_coh[c] = shares[3 * c + 2] * coh.at_ln(ln_kev);
             }
-        }
-        // Fluorescence lines of a photoelectric site, sampled with the scorer's own stream.
-        let mut lines = fluorescence::Emitted::default();
-        if site.kind == Interaction::Photoelectric && s.options.fluorescence {
-            let shell = photoelectric::sample_shell(kev, site.element, &mut rng);
-            lines = fluorescence::cascade(site.element, shell, &mut rng);
         }
         let mut mu_e = [0.0; MAX_MATERIALS];
         mu_all(&problem.materials, kev, &mut mu_e);
-        let mut mt = [0.0; MAX_MATERIALS];
+        let su = ph.pos.axis(s.u_axis) - s.center_u;
+        let sv = ph.pos.axis(s.v_axis) - s.center_v;
+        let p_coh: f64 = if s.options.rayleigh && s.spec.fd_coherent_sampling { (0..elems.len()).map(|c| shares[3 * c + 2]).sum() } else { 0.0 };
+        let nd = NextEvent { s, problem, ph, h, su, sv, cats, elems, a_inc: &a_inc, a_coh: &a_coh, mu_e: &mu_e, lines, weight, p_coh };
+        // The ROI: one point, weight Ω_ROI.
+        let [r_u0, r_u1, r_v0, r_v1] = s.roi_edges_cm;
+        let roi = SphericalRect::new(r_u0 - su, r_u1 - su, r_v0 - sv, r_v1 - sv, h);
+        if roi.solid_angle > 0.0 {
+            let (x, y) = roi.sample(rng.uniform(), rng.uniform());
+            nd.point(tally, x, y, 1.0 / roi.solid_angle, true, history);
+        }
+        // The rest of the face: four rectangles around the ROI (below, above, left, right), one
+        // chosen with probability P_i ∝ its solid angle, a point uniform in solid angle in it;
+        // weight Ω_i / P_i (= Ω_outer) per point, divided by the number of points.
+        let n_out = s.spec.fd_outer_points;
+        let (hu, hv) = (0.5 * s.spec.size_cm[0], 0.5 * s.spec.size_cm[1]);
+        let us = [-hu - su, r_u0 - su, r_u1 - su, hu - su];
+        let vs = [-hv - sv, r_v0 - sv, r_v1 - sv, hv - sv];
+        // (i0, i1, j0, j1) of the four pieces in the us × vs grid.
+        const PIECES: [(usize, usize, usize, usize); 4] = [(0, 3, 0, 1), (0, 3, 2, 3), (0, 1, 1, 2), (2, 3, 1, 2)];
+        let mut omega = [0.0; 4];
+        let mut omega_sum = 0.0;
+        if n_out > 0 {
+            let mut f = [[0.0; 4]; 4];
+            for (i, &u) in us.iter().enumerate() {
+                for (j, &v) in vs.iter().enumerate() {
+                    f[i][j] = sphrect::corner(u, v, h);
+                }
+            }
+            for (k, &(i0, i1, j0, j1)) in PIECES.iter().enumerate() {
+                if us[i1] > us[i0] && vs[j1] > vs[j0] {
+                    omega[k] = (f[i1][j1] - f[i0][j1] - f[i1][j0] + f[i0][j0]).max(0.0);
+                }
+                omega_sum += omega[k];
+            }
+        }
+        if omega_sum > 0.0 {
+            for _ in 0..n_out {
+                let pick = rng.uniform() * omega_sum;
+                let mut k = 0;
+                let mut cum = omega[0];
+                while k < 3 && (pick >= cum || omega[k] == 0.0) {
+                    k += 1;
+                    cum += omega[k];
+                }
+                if omega[k] == 0.0 {
+                    continue;
+                }
+                let (i0, i1, j0, j1) = PIECES[k];
+                let r = SphericalRect::new(us[i0], us[i1], vs[j0], vs[j1], h);
+                if r.solid_angle <= 0.0 {
+                    continue;
+                }
+                let (x, y) = r.sample(rng.uniform(), rng.uniform());
+                // Density of this technique: n_out · P_k / Ω_k (= n_out / Ω_outer).
+                nd.point(tally, x, y, n_out as f64 * (omega[k] / omega_sum) / r.solid_angle, true, history);
+            }
+        }
+        // Coherent scattering, second technique: a direction drawn from the coherent angular
+        // distribution itself (element ∝ P_c^coh, cos θ from its form-factor sampler), scoring
+        // the coherent part only. Both techniques are combined by the balance heuristic
+        // (module docs), which bounds the forward-peak contributions.
+        if nd.p_coh > 0.0 {
+            let pick = rng.uniform() * nd.p_coh;
+            let mut c = 0;
+            let mut cum = shares[2];
+            while c + 1 < elems.len() && (pick >= cum || shares[3 * c + 2] == 0.0) {
+                c += 1;
+                cum += shares[3 * c + 2];
+            }
+            let Some(table) = material.components[c].rayleigh.as_ref() else { return };
+            let cos_theta = table.sample(kev, rng);
+            let dir = crate::physics::rotate(ph.dir, cos_theta, rng.azimuth());
+            let dn = dir.axis(s.n_axis) * s.facing;
+            if dn <= 0.0 {
+                return;
+            }
+            let t = h / dn;
+            let (x, y) = (dir.axis(s.u_axis) * t, dir.axis(s.v_axis) * t);
+            let (du, dv) = (su + x, sv + y);
+            let d_sa = if du >= r_u0 && du < r_u1 && dv >= r_v0 && dv < r_v1 {
+                if roi.solid_angle > 0.0 { 1.0 / roi.solid_angle } else { 0.0 }
+            } else if omega_sum > 0.0 {
+                n_out as f64 / omega_sum
+            } else {
+                0.0
+            };
+            nd.point(tally, x, y, d_sa, false, history);
+        }
+    }
+}
+
+/// What the next-event contributions of one site share.
+struct NextEvent<'a> {
+    s: &'a DetectorSetup,
+    problem: &'a Problem,
+    ph: &'a PhotonView,
+    /// Distance from the site to the plane (cm).
+    h: f64,
+    /// Site offsets in the plane's frame, from the face centre (cm).
+    su: f64,
+    sv: f64,
+    /// Categories of incoherent and coherent contributions.
+    cats: (usize, usize),
+    elems: &'a [usize],
+    a_inc: &'a [f64; MAX_COMPONENTS],
+    a_coh: &'a [f64; MAX_COMPONENTS],
+    mu_e: &'a [f64; MAX_MATERIALS],
+    lines: &'a fluorescence::Emitted,
+    /// Weight of the photon at the site.
+    weight: f64,
+    /// Total coherent probability P^coh = Σ_c P_c^coh when coherent directions are also
+    /// sampled from their own distribution, else 0 (then the solid-angle points alone).
+    p_coh: f64,
+}
+
+impl NextEvent<'_> {
+    /// Scores the contributions towards the face point at offset (x, y) from the site's foot
+    /// point. `d_sa` is the density in solid angle (times its number of points) of the
+    /// solid-angle technique covering that point; `all` scores every part (a solid-angle
+    /// sample), otherwise the coherent part only (a sample of the coherent distribution).
+    #[inline]
+    fn point(&self, tally: &mut Tally, x: f64, y: f64, d_sa: f64, all: bool, history: u64) {
+        let s = self.s;
+        let ph = self.ph;
+        let (du, dv) = (self.su + x, self.sv + y);
+        let Some((iu, iv)) = DetectorScorer::pixel_of(s, du, dv) else { return };
+        let r = (x * x + y * y + self.h * self.h).sqrt();
+        let inv_r = 1.0 / r;
+        let dir = Vec3::new(0.0, 0.0, 0.0).with_axis(s.u_axis, x * inv_r).with_axis(s.v_axis, y * inv_r).with_axis(s.n_axis, s.facing * self.h * inv_r);
+        let cos_det = self.h * inv_r;
+        let problem = self.problem;
         let nmat = problem.materials.len();
+        let mut mt = [0.0; MAX_MATERIALS];
+        let fast = mass_thickness(&problem.geometry, nmat, ph.pos, dir, r, &mut mt);
+        let tau_at = |e: f64, mu: Option<&[f64; MAX_MATERIALS]>| -> f64 {
+            if fast {
+                match mu {
+                    Some(mu) => (0..nmat).map(|k| mu[k] * mt[k]).sum(),
+                    None => {
+                        let ln = e.ln();
+                        (0..nmat).filter(|&k| mt[k] > 0.0).map(|k| problem.materials[k].mu_rho_at(problem.materials[k].lookup_ln(ln)) * mt[k]).sum()
+                    }
+                }
+            } else {
+                crate::raytrace::optical_depth(&problem.geometry, &problem.materials, ph.pos, dir, r, e)
+            }
+        };
+        // Per category: with grid, without grid.
+        let mut val = [0.0; N_CAT];
+        let mut raw = [0.0; N_CAT];
+        let cos_s = ph.dir.dot(dir).clamp(-1.0, 1.0);
+        let kev = ph.kev;
+        let w_area = self.weight / s.pixel_area_cm2;
+        let geo = if all { w_area / d_sa } else { 0.0 };
+        // Incoherent.
+        let e_inc = kev / (1.0 + kev / ELECTRON_REST_KEV * (1.0 - cos_s));
+        if all && e_inc >= s.options.cutoff_kev {
+            let kn = klein_nishina::dsigma_domega_cm2(kev, cos_s);
+            let mut p = 0.0;
+            for (c, &ei) in self.elems.iter().enumerate() {
+                p += self.a_inc[c] * incoherent_dsigma(kn, kev, cos_s, s.norms[ei].element, s.options.bound_compton);
+            }
+            if p > 0.0 {
+                let v = geo * p * (-tau_at(e_inc, None)).exp() * s.spec.response.value(e_inc, cos_det);
+                raw[self.cats.0] += v;
+                val[self.cats.0] += v * DetectorScorer::grid_at(s, e_inc, du, dir);
+            }
+        }
+        // Coherent.
+        if s.options.rayleigh {
+            let mut p = 0.0;
+            for (c, &ei) in self.elems.iter().enumerate() {
+                p += self.a_coh[c] * coherent_dsigma(kev, cos_s, s.norms[ei].element);
+            }
+            if p > 0.0 {
+                // Balance heuristic: f / (d_sa + p_coh(Ω)), p_coh(Ω) = p / P^coh the sampled
+                // coherent density, the same for both techniques' samples (f / d_sa when the
+                // coherent technique is off).
+                let d_coh = if self.p_coh > 0.0 { p / self.p_coh } else { 0.0 };
+                let v = w_area * p / (d_sa + d_coh) * (-tau_at(kev, Some(self.mu_e))).exp() * s.spec.response.value(kev, cos_det);
+                raw[self.cats.1] += v;
+                val[self.cats.1] += v * DetectorScorer::grid_at(s, kev, du, dir);
+            }
+        }
+        // Fluorescence emission (isotropic).
         let inv4pi = 1.0 / (4.0 * std::f64::consts::PI);
-        let (nsu, nsv) = (s.strata_u.len() - 1, s.strata_v.len() - 1);
-        for jv in 0..nsv {
-            let (v0, v1) = (s.strata_v[jv], s.strata_v[jv + 1]);
-            for ju in 0..nsu {
-                let (u0, u1) = (s.strata_u[ju], s.strata_u[ju + 1]);
-                let du = u0 + (u1 - u0) * rng.uniform();
-                let dv = v0 + (v1 - v0) * rng.uniform();
-                let Some((iu, iv)) = Self::pixel_of(s, du, dv) else { continue };
-                let area = (u1 - u0) * (v1 - v0);
-                let x = Vec3::new(0.0, 0.0, 0.0).with_axis(s.n_axis, s.plane_cm).with_axis(s.u_axis, s.center_u + du).with_axis(s.v_axis, s.center_v + dv);
-                let d = x - ph.pos;
-                let r2 = d.norm_squared();
-                let r = r2.sqrt();
-                let dir = d * (1.0 / r);
-                let cos_det = dir.axis(s.n_axis).abs();
-                // Photons per unit face area per unit (1/sr) density, times the stratum/pixel weight.
-                let geo = ph.weight * cos_det / r2 * area / s.pixel_area_cm2;
-                let fast = mass_thickness(&problem.geometry, nmat, ph.pos, dir, r, &mut mt);
-                let tau_at = |e: f64, mu: Option<&[f64; MAX_MATERIALS]>| -> f64 {
-                    if fast {
-                        match mu {
-                            Some(mu) => (0..nmat).map(|k| mu[k] * mt[k]).sum(),
-                            None => {
-                                let ln = e.ln();
-                                (0..nmat).filter(|&k| mt[k] > 0.0).map(|k| problem.materials[k].mu_rho_at(problem.materials[k].lookup_ln(ln)) * mt[k]).sum()
-                            }
-                        }
-                    } else {
-                        crate::raytrace::optical_depth(&problem.geometry, &problem.materials, ph.pos, dir, r, e)
-                    }
-                };
-                let cos_s = ph.dir.dot(dir).clamp(-1.0, 1.0);
-                // Incoherent.
-                let e_inc = kev / (1.0 + kev / ELECTRON_REST_KEV * (1.0 - cos_s));
-                if e_inc >= s.options.cutoff_kev {
-                    let kn = klein_nishina::dsigma_domega_cm2(kev, cos_s);
-                    let mut p = 0.0;
-                    for (c, &ei) in elems.iter().enumerate() {
-                        p += a_inc[c] * incoherent_dsigma(kn, kev, cos_s, s.norms[ei].element, s.options.bound_compton);
-                    }
-                    if p > 0.0 {
-                        let att = (-tau_at(e_inc, None)).exp();
-                        let raw = geo * p * att * s.spec.response.value(e_inc, cos_det);
-                        let value = raw * Self::grid_at(s, e_inc, du, dir);
-                        Self::score(s, tally, cat_scatter.0, iu, iv, value, raw, history);
-                    }
-                }
-                // Coherent.
-                if s.options.rayleigh {
-                    let mut p = 0.0;
-                    for (c, &ei) in elems.iter().enumerate() {
-                        p += a_coh[c] * coherent_dsigma(kev, cos_s, s.norms[ei].element);
-                    }
-                    if p > 0.0 {
-                        let att = (-tau_at(kev, Some(&mu_e))).exp();
-                        let raw = geo * p * att * s.spec.response.value(kev, cos_det);
-                        let value = raw * Self::grid_at(s, kev, du, dir);
-                        Self::score(s, tally, cat_scatter.1, iu, iv, value, raw, history);
-                    }
-                }
-                // Fluorescence emission (isotropic).
-                for &line in &lines.kev[..lines.count] {
-                    if line >= s.options.cutoff_kev {
-                        let att = (-tau_at(line, None)).exp();
-                        let raw = geo * inv4pi * att * s.spec.response.value(line, cos_det);
-                        let value = raw * Self::grid_at(s, line, du, dir);
-                        Self::score(s, tally, CAT_FLUORESCENCE, iu, iv, value, raw, history);
-                    }
-                }
+        let lines = if all { &self.lines.kev[..self.lines.count] } else { &[][..] };
+        for &line in lines {
+            if line >= s.options.cutoff_kev {
+                let v = geo * inv4pi * (-tau_at(line, None)).exp() * s.spec.response.value(line, cos_det);
+                raw[CAT_FLUORESCENCE] += v;
+                val[CAT_FLUORESCENCE] += v * DetectorScorer::grid_at(s, line, du, dir);
+            }
+        }
+        for cat in [CAT_COMPTON, CAT_RAYLEIGH, CAT_MULTIPLE, CAT_FLUORESCENCE] {
+            if raw[cat] > 0.0 {
+                DetectorScorer::score(s, tally, cat, iu, iv, val[cat], raw[cat], history);
             }
         }
     }
@@ -1235,7 +1375,7 @@ mod tests {
             let table = crate::physics::rayleigh::RayleighTable::new(el);
             for kev in [30.0, 70.0] {
                 for coherent in [false, true] {
-                    let sigma = if coherent { norm.ln_coh.as_ref().unwrap().at_ln(f64::ln(kev)).exp() } else { norm.ln_inc.at_ln(f64::ln(kev)).exp() };
+                    let sigma = 1.0 / if coherent { norm.inv_coh.as_ref().unwrap().at_ln(f64::ln(kev)) } else { norm.inv_inc.at_ln(f64::ln(kev)) };
                     let density = |c: f64| {
                         let d = if coherent { coherent_dsigma(kev, c, el) } else { incoherent_dsigma(klein_nishina::dsigma_domega_cm2(kev, c), kev, c, el, true) };
                         std::f64::consts::TAU * d / sigma

@@ -19,6 +19,15 @@ fn materials(o: &PhysicsOptions) -> (Vec<dosemill_engine::physics::xs::MaterialX
     (vec![material("water", 1.0, WATER, o), material("lead", 11.35, LEAD, o), material("lung", 0.26, WATER, o)], vec![1.0, 11.35, 0.26])
 }
 
+/// The library materials behind [`materials`] (for μen/ρ in the dose scorers).
+fn library() -> Arc<Vec<dosemill_xsdata::Material>> {
+    Arc::new(vec![
+        dosemill_xsdata::library::lookup("water").unwrap(),
+        dosemill_xsdata::library::lookup("lead").unwrap(),
+        dosemill_xsdata::library::lookup("water").unwrap().with_density(0.26).unwrap(),
+    ])
+}
+
 fn voxel_problem(grid: VoxelGrid, mats: Vec<dosemill_engine::physics::xs::MaterialXs>, source: Source, scorers: Vec<Scorer>, tracking: VoxelTracking) -> Problem {
     let maxd = grid.max_density_by_material();
     let majorant = Majorant::new(&mats, &maxd);
@@ -105,11 +114,7 @@ fn delta_tracking_matches_exact_traversal() {
     let o = PhysicsOptions::default();
     let (mats, rho) = materials(&o);
     let g = Arc::new(heterogeneous(&rho));
-    let lib: Arc<Vec<_>> = Arc::new(vec![
-        dosemill_xsdata::library::lookup("water").unwrap(),
-        dosemill_xsdata::library::lookup("lead").unwrap(),
-        dosemill_xsdata::library::lookup("water").unwrap().with_density(0.26).unwrap(),
-    ]);
+    let lib = library();
     let scorers = || vec![Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::Analog, g.clone(), [4, 4, 4], None, lib.clone()))), Scorer::depth_energy(0.0, 1.0, 20)];
     let a = run(&voxel_problem((*g).clone(), mats.clone(), broad_beam(), scorers(), VoxelTracking::Woodcock), &settings(150_000, 11, 2));
     let b = run(&voxel_problem((*g).clone(), mats, broad_beam(), scorers(), VoxelTracking::Exact), &settings(150_000, 12, 2));
@@ -128,11 +133,7 @@ fn track_length_and_analog_agree() {
     let o = PhysicsOptions::default();
     let (mats, rho) = materials(&o);
     let g = Arc::new(heterogeneous(&rho));
-    let lib: Arc<Vec<_>> = Arc::new(vec![
-        dosemill_xsdata::library::lookup("water").unwrap(),
-        dosemill_xsdata::library::lookup("lead").unwrap(),
-        dosemill_xsdata::library::lookup("water").unwrap().with_density(0.26).unwrap(),
-    ]);
+    let lib = library();
     let scorers = vec![
         Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::Analog, g.clone(), [8, 8, 4], None, lib.clone()))),
         Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::TrackLength, g.clone(), [8, 8, 4], None, lib.clone()))),
@@ -183,11 +184,7 @@ fn voxel_dose_bits_do_not_depend_on_threads_or_splitting() {
     let o = PhysicsOptions::default();
     let (mats, rho) = materials(&o);
     let g = Arc::new(heterogeneous(&rho));
-    let lib: Arc<Vec<_>> = Arc::new(vec![
-        dosemill_xsdata::library::lookup("water").unwrap(),
-        dosemill_xsdata::library::lookup("lead").unwrap(),
-        dosemill_xsdata::library::lookup("water").unwrap().with_density(0.26).unwrap(),
-    ]);
+    let lib = library();
     let scorers = vec![
         Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::Analog, g.clone(), [1, 1, 1], None, lib.clone()))),
         Scorer::VoxelDose(Box::new(VoxelDose::new(DoseEstimator::TrackLength, g.clone(), [2, 2, 2], None, lib.clone()))),

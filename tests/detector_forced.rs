@@ -152,15 +152,16 @@ fn forced_detection_matches_analog_scatter_in_water() {
     let (forced, sf) = batches(&problem(&deck(layers, true, "", "vacuum")), 24_000, 2);
     compare(&analog, &forced, &[1, 2, 3, 5]);
     compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
-    // The optional second technique for coherent directions (balance heuristic).
-    let mut p = problem(&deck(layers, true, "", "vacuum"));
-    match &mut p.scorers[0] {
-        Scorer::Detector(d) => std::sync::Arc::get_mut(&mut d.setup).expect("unshared set-up").spec.fd_coherent_sampling = true,
+    // The optional second technique for coherent directions (balance heuristic), with three
+    // next-event points over the outer face, both set from the deck.
+    let p = problem(&deck(layers, true, "forced_detection_coherent_directions = true\nforced_detection_outer_points = 3", "vacuum"));
+    match &p.scorers[0] {
+        Scorer::Detector(d) => assert!(d.setup.spec.fd_coherent_sampling && d.setup.spec.fd_outer_points == 3, "deck keys reach the scorer"),
         _ => panic!("not a detector"),
     }
     let (forced_coh, sc) = batches(&p, 24_000, 5);
-    compare(&analog, &forced_coh, &[2, 3, 5]);
-    compare_face_sums(&sa, &sc, &[2, 3, 5]);
+    compare(&analog, &forced_coh, &[1, 2, 3, 5]);
+    compare_face_sums(&sa, &sc, &[1, 2, 3, 5]);
     // The ROI mean of the forced estimate against the analog crossings of the same FD run.
     let s = detector(&forced.scorers[0]).summary(forced.histories);
     let z = (s.mean[summary::ROI_SCATTER] - s.mean[summary::ROI_SCATTER_ANALOG]) / s.sigma[summary::ROI_SCATTER_ANALOG];

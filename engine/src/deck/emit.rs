@@ -352,6 +352,8 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                     t["anti_scatter_grid"] = value(it);
                 }
                 t["forced_detection"] = value(d.forced_detection);
+                t["forced_detection_outer_points"] = value(d.forced_detection_outer_points as i64);
+                t["forced_detection_coherent_directions"] = value(d.forced_detection_coherent_directions);
             }
         }
         aot.push(t);

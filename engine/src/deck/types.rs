@@ -479,6 +479,11 @@ pub struct Detector {
     pub anti_scatter_grid: Option<AntiScatterGrid>,
     /// Score the expected contribution of every interaction (point detection) instead of crossings.
     pub forced_detection: bool,
+    /// Next-event points per interaction site over the face outside the central ROI (1–64).
+    pub forced_detection_outer_points: usize,
+    /// Also draw a coherent-scatter direction from its own angular distribution at each site
+    /// (combined with the solid-angle points by the balance heuristic).
+    pub forced_detection_coherent_directions: bool,
 }
 
 /// Detector signals.

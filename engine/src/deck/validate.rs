@@ -1468,6 +1468,8 @@ impl<'f> Walk<'f> {
                 "layer",
                 "anti_scatter_grid",
                 "forced_detection",
+                "forced_detection_outer_points",
+                "forced_detection_coherent_directions",
             ],
             _ => &[],
         };
@@ -1659,6 +1661,11 @@ impl<'f> Walk<'f> {
         );
         let resp_bad = t.get("response").is_some_and(|e| !matches!(&e.val, Val::Str(s) if ["energy_fluence", "photon_fluence", "absorbed"].contains(&s.as_str())));
         let forced = t.bool_or(cx, "forced_detection", false);
+        let outer_points = match t.get("forced_detection_outer_points") {
+            Some(n) => uint_in(cx, n, &t.kp("forced_detection_outer_points"), 1, 64),
+            None => Some(1),
+        };
+        let coherent_directions = t.bool_or(cx, "forced_detection_coherent_directions", false);
         let mut pixels = None;
         if let (Some(s), Some(p)) = (size, pitch) {
             let n0 = (s[0] / p[0]).round();
@@ -1775,6 +1782,8 @@ impl<'f> Walk<'f> {
             response: response?,
             anti_scatter_grid: grid?,
             forced_detection: forced,
+            forced_detection_outer_points: outer_points? as usize,
+            forced_detection_coherent_directions: coherent_directions,
         })
     }
 

@@ -1346,6 +1346,8 @@ pub fn from_deck(
     let c = det.position_cm;
     let mut spec = DetectorSpec::new(Vec3::new(c[0], c[1], c[2]), axis, det.size_cm, [det.pixels[0] as usize, det.pixels[1] as usize], response);
     spec.forced_detection = det.forced_detection;
+    spec.fd_outer_points = det.forced_detection_outer_points;
+    spec.fd_coherent_sampling = det.forced_detection_coherent_directions;
     if let Some(g) = &det.anti_scatter_grid {
         let table = |name: &str, key: &str| -> Result<MaterialXs, String> {
             let m = resolve(name, key)?;

@@ -551,14 +551,7 @@ impl VoxelGrid {
     /// (the last voxel also holds its high face).
     #[inline]
     pub fn voxel_at(&self, p: Vec3) -> Option<usize> {
-        if !self.bounds.contains(p) {
-            return None;
-        }
-        let [nx, ny, _] = self.layout.dims;
-        let ix = self.cell_along(0, p.x, 0.0);
-        let iy = self.cell_along(1, p.y, 0.0);
-        let iz = self.cell_along(2, p.z, 0.0);
-        Some(ix + nx * (iy + ny * iz))
+        self.cell_at(p).map(|(i, _)| i)
     }
 
     /// The region containing `p`: a voxel, the world (inside the closed world box), or

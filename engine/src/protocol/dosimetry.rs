@@ -207,14 +207,22 @@ pub fn emission_of(beam: &BeamShape, fsd_cm: f64) -> Emission {
     }
 }
 
-fn settings(histories: u64, seed: u64, threads: usize) -> RunSettings {
+pub(super) fn settings(histories: u64, seed: u64, threads: usize) -> RunSettings {
     RunSettings { histories, seed, chunk_histories: (histories / 64).clamp(1000, 100_000), threads: threads.max(1), progress: false }
 }
 
-/// Mean and σ of bin `b` of the first scorer (a [`PlaneKerma`]) converted to Gy.
-fn bin_gy(res: &crate::transport::RunResult, b: usize) -> Estimate {
-    let (m, s) = res.scorers[0].tally().mean_and_sigma(res.histories);
-    Estimate::new(m[b] * GY_PER_KEV_PER_G, s[b] * GY_PER_KEV_PER_G)
+/// Mean and σ of every bin of scorer `scorer` (a [`PlaneKerma`]) converted to Gy.
+pub(super) fn plane_kerma_gy(res: &crate::transport::RunResult, scorer: usize) -> Vec<Estimate> {
+    let (m, s) = res.scorers[scorer].tally().mean_and_sigma(res.histories);
+    m.iter().zip(&s).map(|(m, s)| Estimate::new(m * GY_PER_KEV_PER_G, s * GY_PER_KEV_PER_G)).collect()
+}
+
+/// Percentage depth dose: each depth's dose over the first one (NaN when that is not positive).
+pub(super) fn percentage_depth_dose(depth: &[Estimate]) -> Vec<Estimate> {
+    match depth.first() {
+        Some(d0) if d0.value > 0.0 => depth.iter().map(|d| d.ratio(*d0).scale(100.0)).collect(),
+        _ => vec![Estimate::new(f64::NAN, f64::NAN); depth.len()],
+    }
 }
 
 /// Runs the free-in-air and phantom runs and derives B, surface doses and depth doses.
@@ -250,19 +258,20 @@ pub fn surface_and_depth(phantom: &SlabPhantom, setup: &SurfaceSetup) -> Result<
     let free = run(&free_problem, &settings(setup.free_histories, setup.seed.wrapping_add(1), setup.threads));
     let full = run(&phantom_problem, &settings(setup.phantom_histories, setup.seed, setup.threads));
     let idx = |plane: usize, medium: usize, dir: usize| (plane * media.len() + medium) * crate::score::axial::DIRECTIONS + dir;
+    let (free_k, full_k) = (plane_kerma_gy(&free, 0), plane_kerma_gy(&full, 0));
 
-    let k_free = bin_gy(&free, idx(0, 0, 0));
+    let k_free = free_k[idx(0, 0, 0)];
     if !(k_free.value > 0.0) {
         return Err(DosimetryError::NoScore(format!("no photon crossed the {} cm scoring disc free in air; raise the histories", setup.disc_radius_cm)));
     }
-    let k_entr = bin_gy(&full, idx(0, 0, 0));
-    let k_back = bin_gy(&full, idx(0, 0, 2));
+    let k_entr = full_k[idx(0, 0, 0)];
+    let k_back = full_k[idx(0, 0, 2)];
     let b = k_entr.ratio(k_free);
     let mut surface_kerma = Vec::new();
     let mut per_iak = Vec::new();
     let mut ratio = Vec::new();
     for m in 0..n_surface {
-        let k = bin_gy(&full, idx(0, 1 + m, 0));
+        let k = full_k[idx(0, 1 + m, 0)];
         surface_kerma.push(k);
         per_iak.push(k.ratio(k_free));
         ratio.push(k.ratio(k_entr));
@@ -270,14 +279,11 @@ pub fn surface_and_depth(phantom: &SlabPhantom, setup: &SurfaceSetup) -> Result<
     let mut depth = Vec::new();
     let mut depth_iak = Vec::new();
     for i in 0..setup.depths_cm.len() {
-        let d = bin_gy(&full, idx(1 + i, phantom_medium, 0));
+        let d = full_k[idx(1 + i, phantom_medium, 0)];
         depth.push(d);
         depth_iak.push(d.ratio(k_free));
     }
-    let pdd = match depth.first() {
-        Some(d0) if d0.value > 0.0 => depth.iter().map(|d| d.ratio(*d0).scale(100.0)).collect(),
-        _ => vec![Estimate::new(f64::NAN, f64::NAN); depth.len()],
-    };
+    let pdd = percentage_depth_dose(&depth);
     Ok(SurfaceResult {
         free_air_kerma_gy: k_free,
         entrance_air_kerma_gy: k_entr,
@@ -343,7 +349,7 @@ pub fn measure_hvl(
         let (rho, thick) = if t == 0.0 { (0.0, tmax_cm) } else { (absorber.density_g_cm3(), t / 10.0) };
         let p = slab_problem(absorber, rho, front, thick, None, emission, spectrum.clone(), vec![Scorer::PlaneKerma(scorer.clone())], physics)?;
         let r = run(&p, &settings(histories, seed.wrapping_add(i as u64), threads));
-        kerma.push(bin_gy(&r, 0));
+        kerma.push(plane_kerma_gy(&r, 0)[0]);
     }
     let k0 = kerma[0];
     let transmission: Vec<Estimate> = kerma.iter().map(|k| k.ratio(k0)).collect();

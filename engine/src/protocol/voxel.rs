@@ -19,14 +19,14 @@
 
 use std::sync::Arc;
 
-use super::dosimetry::{emission_of, slab_problem, BeamShape, DosimetryError, Estimate, SURFACE_GAP_CM};
+use super::dosimetry::{emission_of, percentage_depth_dose, plane_kerma_gy, settings, slab_problem, BeamShape, DosimetryError, Estimate, SURFACE_GAP_CM};
 use crate::deck;
 use crate::physics::PhysicsOptions;
-use crate::score::axial::{PlaneKerma, DIRECTIONS, GY_PER_KEV_PER_G};
+use crate::score::axial::{PlaneKerma, DIRECTIONS};
 use crate::score::voxel_dose::{DoseEstimator, VoxelDose};
 use crate::score::{Scorer, JOULE_PER_KEV};
 use crate::source::{EnergySpectrum, Field, Source};
-use crate::transport::{run, Geometry, Problem, RunSettings};
+use crate::transport::{run, Geometry, Problem};
 use dosemill_geometry::Vec3;
 
 /// Voxels less dense than this (g/cm³) are air in front of or behind the patient.
@@ -247,31 +247,25 @@ pub fn evaluate_voxel(path: &str, thickness_cm: f64, beam: &VoxelBeam) -> Result
     let air = lib("air")?;
     let free_pk = PlaneKerma::new([0.0, 0.0], beam.disc_radius_cm, vec![beam.fsd_cm - SURFACE_GAP_CM], vec![Arc::new(air.clone())]).map_err(|e| DosimetryError::Material(e.to_string()))?;
     let free_problem = slab_problem(&air, 0.0, beam.fsd_cm, axis_t.max(1.0), None, emission_of(&BeamShape::Field(beam.field), beam.fsd_cm), beam.spectrum.clone(), vec![Scorer::PlaneKerma(free_pk)], &physics)?;
-    let settings = |h: u64, seed: u64| RunSettings { histories: h, seed, chunk_histories: (h / 64).clamp(1000, 100_000), threads: beam.threads.max(1), progress: false };
-    let free = run(&free_problem, &settings(2 * beam.histories, beam.seed.wrapping_add(1)));
-    let full = run(&problem, &settings(beam.histories, beam.seed));
+    let free = run(&free_problem, &settings(2 * beam.histories, beam.seed.wrapping_add(1), beam.threads));
+    let full = run(&problem, &settings(beam.histories, beam.seed, beam.threads));
 
-    let (fm, fs) = free.scorers[0].tally().mean_and_sigma(free.histories);
-    let k_free = Estimate::new(fm[0] * GY_PER_KEV_PER_G, fs[0] * GY_PER_KEV_PER_G);
+    let k_free = plane_kerma_gy(&free, 0)[0];
     if !(k_free.value > 0.0) {
         return Err(DosimetryError::NoScore(format!("no photon crossed the {} cm scoring disc free in air; raise the histories", beam.disc_radius_cm)).into());
     }
-    let (pm, ps) = full.scorers[1].tally().mean_and_sigma(full.histories);
+    let full_k = plane_kerma_gy(&full, 1);
     let nm = media.len();
     let bin = |plane: usize, medium: usize| (plane * nm + medium) * DIRECTIONS;
-    let get = |b: usize| Estimate::new(pm[b] * GY_PER_KEV_PER_G, ps[b] * GY_PER_KEV_PER_G);
-    let k_entr = get(bin(0, 0));
+    let k_entr = full_k[bin(0, 0)];
     let b = k_entr.ratio(k_free);
-    let kw = get(bin(0, 1));
-    let kt = get(bin(0, 2));
+    let kw = full_k[bin(0, 1)];
+    let kt = full_k[bin(0, 2)];
     let mut depth_iak = Vec::new();
     for (j, &m) in depth_media.iter().enumerate() {
-        depth_iak.push(get(bin(1 + j, 3 + m)).ratio(k_free));
+        depth_iak.push(full_k[bin(1 + j, 3 + m)].ratio(k_free));
     }
-    let pdd = match depth_iak.first() {
-        Some(d0) if d0.value > 0.0 => depth_iak.iter().map(|d| d.ratio(*d0).scale(100.0)).collect(),
-        _ => vec![Estimate::new(f64::NAN, f64::NAN); depth_iak.len()],
-    };
+    let pdd = percentage_depth_dose(&depth_iak);
 
     // Regions: track-length energy per history over the region mass.
     let Scorer::VoxelDose(v) = &full.scorers[0] else { unreachable!("first scorer is the voxel dose") };

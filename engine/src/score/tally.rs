@@ -291,12 +291,7 @@ impl Tally {
         match &mut self.store {
             Store::Dense { sum, sum2, current, last } => {
                 if last[bin] != history {
-                    let c = current[bin];
-                    if c != 0.0 {
-                        sum[bin] += to_fixed(c);
-                        sum2[bin] += to_fixed(c * c);
-                        current[bin] = 0.0;
-                    }
+                    fold_dense(bin, sum, sum2, current);
                     last[bin] = history;
                 }
                 current[bin] += value;
@@ -317,12 +312,7 @@ impl Tally {
         match &mut self.store {
             Store::Dense { sum, sum2, current, last } => {
                 for bin in 0..sum.len() {
-                    let c = current[bin];
-                    if c != 0.0 {
-                        sum[bin] += to_fixed(c);
-                        sum2[bin] += to_fixed(c * c);
-                        current[bin] = 0.0;
-                    }
+                    fold_dense(bin, sum, sum2, current);
                     last[bin] = NO_HISTORY;
                 }
             }
@@ -441,6 +431,17 @@ impl Tally {
                 })
                 .unzip(),
         }
+    }
+}
+
+/// Folds the open history's total of dense bin `bin` into its sums.
+#[inline(always)]
+fn fold_dense(bin: usize, sum: &mut [u128], sum2: &mut [u128], current: &mut [f64]) {
+    let c = current[bin];
+    if c != 0.0 {
+        sum[bin] += to_fixed(c);
+        sum2[bin] += to_fixed(c * c);
+        current[bin] = 0.0;
     }
 }
 

@@ -67,6 +67,7 @@ fn values_spec(d: &DataBuf) -> Value {
         DataBuf::U16(v) => json!(v),
         DataBuf::U8(v) => json!(v),
         DataBuf::Str(v) => json!(v),
+        DataBuf::Produced(p) => json!(p.to_vec().iter().map(|x| x.to_bits()).collect::<Vec<_>>()),
     }
 }
 
@@ -189,6 +190,19 @@ fn demo_file() -> ResultFile {
             .with_attr("note", "f32"),
     );
     deeper.add_dataset(Dataset::new("scalar", &[], DataBuf::F64(vec![-1.5]), "s"));
+    // A grid whose values are produced while the file is written (filled in place after the
+    // builder reserved its storage): large enough to take that path.
+    let (pi, pj, pk) = (64, 32, 48);
+    deeper.add_dataset(Dataset::new(
+        "produced",
+        &[pi, pj, pk],
+        DataBuf::Produced(dosemill_engine::output::Produced::new(pi * pj * pk, |start, out| {
+            for (k, o) in out.iter_mut().enumerate() {
+                *o = ((start + k) as f64).ln_1p() / 7.0 - 1.0;
+            }
+        })),
+        "Gy",
+    ));
     deeper.add_dataset(Dataset::new("empty", &[0], DataBuf::F64(vec![]), "Gy"));
     deeper.add_dataset(Dataset::text("resolved_deck", &long_text(100_000)));
     deeper.add_dataset(Dataset::new(

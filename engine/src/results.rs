@@ -3,7 +3,8 @@
 //! Every value is a mean per source history with its 1σ standard error in `<name>_sigma`.
 //! Energy deposited is kerma-approximation energy (secondary electrons deposit locally).
 
-use crate::output::{Dataset, Group, ResultFile};
+use crate::output::{DataBuf, Dataset, Group, Produced, ResultFile};
+use std::sync::Arc;
 use crate::score::{counts, Scorer, JOULE_PER_KEV};
 use crate::setup::SetupInfo;
 use crate::transport::RunResult;
@@ -125,7 +126,8 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
     }
 
     for (s, si) in run.scorers.iter().zip(&info.scores) {
-        let (mean, sigma) = s.tally().mean_and_sigma(n);
+        // A voxel dose grid is read bin by bin from its tally as the file is written.
+        let (mean, sigma) = if matches!(s, Scorer::VoxelDose(_)) { (Vec::new(), Vec::new()) } else { s.tally().mean_and_sigma(n) };
         let group = match (s, &si.kind) {
             (Scorer::RegionEnergy { .. }, _) => {
                 let mut g = Group::with_kind(&si.name, "layer_energy");
@@ -190,7 +192,7 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
                 g.set_attr("normalisation", "air kerma (Gy) and planar photon fluence (1/cm2) per source history from photons crossing the disc, by direction; mu_en/rho of dry air from the project's tables");
                 g
             }
-            (Scorer::VoxelDose(v), _) => voxel_dose_group(&si.name, v, mean, sigma),
+            (Scorer::VoxelDose(v), _) => voxel_dose_group(&si.name, v, n),
             (Scorer::PlaneKerma(_), _) => {
                 let mut g = Group::with_kind(&si.name, "plane_kerma");
                 pair(&mut g, "kerma", &[mean.len()], mean, sigma, "keV/g");
@@ -220,38 +222,63 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
 
 /// The group of a voxel-dose score: the dose grid (kind `dose_grid`, [z, y, x] order, x fastest
 /// as the voxel index), its uncertainty, the central-axis depth dose, and per-region sums.
-fn voxel_dose_group(name: &str, v: &crate::score::voxel_dose::VoxelDose, mean: Vec<f64>, sigma: Vec<f64>) -> Group {
+///
+/// The per-voxel arrays are [`Produced`]: computed block by block from the tally and the phantom
+/// while the file is written, so a large grid is never copied (see `output/h5.rs`).
+fn voxel_dose_group(name: &str, v: &crate::score::voxel_dose::VoxelDose, histories: u64) -> Group {
     let grid = &v.grid;
     let l = grid.layout();
     let pd = grid.dims();
     let n = v.voxels();
+    let stats = v.tally.bin_stats_source(histories);
     // Masses of the scoring voxels and of the regions (g).
     let voxel_volume = l.voxel_size_cm.x * l.voxel_size_cm.y * l.voxel_size_cm.z;
     let regions = v.labels.as_ref().map(|x| x.1.len()).unwrap_or(0);
-    let mut mass = vec![0.0; n];
     let mut region_mass = vec![0.0; regions];
-    for i in 0..grid.num_voxels() {
-        let (_, rho) = grid.voxel_medium(i);
-        let (ix, iy, iz) = (i % pd[0], (i / pd[0]) % pd[1], i / (pd[0] * pd[1]));
-        let b = ix / v.block[0] + v.dims[0] * (iy / v.block[1] + v.dims[1] * (iz / v.block[2]));
-        mass[b] += rho * voxel_volume;
-        if let Some(lab) = &v.labels {
-            region_mass[lab.0[i] as usize] += rho * voxel_volume;
+    if let Some(lab) = &v.labels {
+        for i in 0..grid.num_voxels() {
+            region_mass[lab.0[i] as usize] += grid.voxel_medium(i).1 * voxel_volume;
         }
     }
+    // Mass of scoring voxel `b`: its block of phantom voxels, summed in phantom-index order.
+    let mass_of = {
+        let (grid, block, dims) = (Arc::clone(grid), v.block, v.dims);
+        move |b: usize| -> f64 {
+            let (bx, by, bz) = (b % dims[0], (b / dims[0]) % dims[1], b / (dims[0] * dims[1]));
+            let mut m = 0.0;
+            for iz in bz * block[2]..((bz + 1) * block[2]).min(pd[2]) {
+                for iy in by * block[1]..((by + 1) * block[1]).min(pd[1]) {
+                    for ix in bx * block[0]..((bx + 1) * block[0]).min(pd[0]) {
+                        m += grid.voxel_medium(ix + pd[0] * (iy + pd[1] * iz)).1 * voxel_volume;
+                    }
+                }
+            }
+            m
+        }
+    };
     let to_gy = |e: f64, m: f64| if m > 0.0 { e * JOULE_PER_KEV / (m * 1e-3) } else { 0.0 };
-    let dose: Vec<f64> = (0..n).map(|i| to_gy(mean[i], mass[i])).collect();
-    let dose_s: Vec<f64> = (0..n).map(|i| to_gy(sigma[i], mass[i])).collect();
     let shape = [v.dims[2], v.dims[1], v.dims[0]];
+    let produced = |f: Arc<dyn Fn(usize) -> f64 + Send + Sync>| {
+        DataBuf::Produced(Produced::new(n, move |start, out| {
+            for (k, o) in out.iter_mut().enumerate() {
+                *o = f(start + k);
+            }
+        }))
+    };
+    let mass_of = Arc::new(mass_of);
+    let dose_of: Arc<dyn Fn(usize) -> f64 + Send + Sync> = { let (s, m) = (stats.clone(), Arc::clone(&mass_of)); Arc::new(move |i| to_gy(s.get(i).0, m(i))) };
+    let dose_sigma_of: Arc<dyn Fn(usize) -> f64 + Send + Sync> = { let (s, m) = (stats.clone(), Arc::clone(&mass_of)); Arc::new(move |i| to_gy(s.get(i).1, m(i))) };
     let mut g = Group::with_kind(name, "dose_grid");
     g.set_attr("estimator", match v.estimator {
         crate::score::voxel_dose::DoseEstimator::Analog => "analog",
         crate::score::voxel_dose::DoseEstimator::TrackLength => "track_length",
     });
     g.set_attr("normalisation", "dose (Gy) per source history in each scoring voxel, kerma approximation; array order [z, y, x]");
-    pair(&mut g, "dose", &shape, dose.clone(), dose_s.clone(), "Gy");
-    pair(&mut g, "energy", &shape, mean[..n].to_vec(), sigma[..n].to_vec(), "keV");
-    g.add_dataset(Dataset::f64_nd("mass", &shape, mass.clone(), "g"));
+    g.add_dataset(Dataset::new("dose", &shape, produced(Arc::clone(&dose_of)), "Gy"));
+    g.add_dataset(Dataset::new("dose_sigma", &shape, produced(Arc::clone(&dose_sigma_of)), "Gy"));
+    g.add_dataset(Dataset::new("energy", &shape, produced({ let s = stats.clone(); Arc::new(move |i| s.get(i).0) }), "keV"));
+    g.add_dataset(Dataset::new("energy_sigma", &shape, produced({ let s = stats.clone(); Arc::new(move |i| s.get(i).1) }), "keV"));
+    g.add_dataset(Dataset::new("mass", &shape, produced({ let m = Arc::clone(&mass_of); Arc::new(move |i| m(i)) }), "g"));
     let edges_along = |a: usize| -> Vec<f64> {
         let w = l.voxel_size_cm.axis(a) * v.block[a] as f64;
         (0..=v.dims[a]).map(|k| (l.origin_cm.axis(a) + k as f64 * w).min(l.origin_cm.axis(a) + pd[a] as f64 * l.voxel_size_cm.axis(a))).collect()
@@ -267,7 +294,7 @@ fn voxel_dose_group(name: &str, v: &crate::score::voxel_dose::VoxelDose, mean: V
     let col: Vec<usize> = (0..v.dims[2]).map(|k| cx + v.dims[0] * (cy + v.dims[1] * k)).collect();
     let mut axis = Group::with_kind("central_axis", "depth_dose");
     axis.set_attr("normalisation", "dose (Gy) per source history in the column of scoring voxels through the grid centre along z");
-    pair(&mut axis, "dose", &[col.len()], col.iter().map(|&i| dose[i]).collect(), col.iter().map(|&i| dose_s[i]).collect(), "Gy");
+    pair(&mut axis, "dose", &[col.len()], col.iter().map(|&i| dose_of(i)).collect(), col.iter().map(|&i| dose_sigma_of(i)).collect(), "Gy");
     axis.add_dataset(Dataset::f64_1d("depth_edges", ez.clone(), "cm").with_attr("label", "z"));
     axis.attach_axis("dose", 0, "depth_edges", &ez, "cm").expect("consistent axis layout");
     axis.attach_axis("dose_sigma", 0, "depth_edges", &ez, "cm").expect("consistent axis layout");
@@ -275,8 +302,8 @@ fn voxel_dose_group(name: &str, v: &crate::score::voxel_dose::VoxelDose, mean: V
     if let Some(lab) = &v.labels {
         let mut r = Group::with_kind("regions", "region_dose");
         r.set_attr("labels", lab.1.join(","));
-        let rd: Vec<f64> = (0..regions).map(|k| to_gy(mean[n + k], region_mass[k])).collect();
-        let rs: Vec<f64> = (0..regions).map(|k| to_gy(sigma[n + k], region_mass[k])).collect();
+        let rd: Vec<f64> = (0..regions).map(|k| to_gy(stats.get(n + k).0, region_mass[k])).collect();
+        let rs: Vec<f64> = (0..regions).map(|k| to_gy(stats.get(n + k).1, region_mass[k])).collect();
         pair(&mut r, "mean_dose", &[regions], rd, rs, "Gy");
         r.add_dataset(Dataset::f64_1d("mass", region_mass, "g"));
         g.add_group(r);

@@ -67,18 +67,81 @@ pub fn write_atomic_with(
             path: path.to_owned(),
         });
     }
-    let builder = build(file);
+    let mut produced = Vec::new();
+    let builder = build(file, &mut produced);
     commit_atomic(path, options, |sink, tmp_path| {
-        match builder.finish_to(sink) {
-            Ok(()) => Ok(()),
-            Err(h5::Error::Io(source)) => Err(OutputError::Io {
-                path: tmp_path.to_owned(),
-                action: "cannot write temporary result file",
-                source,
-            }),
-            Err(e) => Err(hdf5_err(path, "/".into(), e)),
+        let io_err = |source| OutputError::Io {
+            path: tmp_path.to_owned(),
+            action: "cannot write temporary result file",
+            source,
+        };
+        match builder.finish_to(&mut *sink) {
+            Ok(()) => {}
+            Err(h5::Error::Io(source)) => return Err(io_err(source)),
+            Err(e) => return Err(hdf5_err(path, "/".into(), e)),
         }
+        if !produced.is_empty() {
+            sink.flush().map_err(io_err)?;
+            fill_produced(path, tmp_path, sink, &produced)?;
+        }
+        Ok(())
     })
+}
+
+/// Writes the elements of produced datasets into the storage the builder reserved for them.
+///
+/// The builder wrote each produced dataset as a contiguous block of zeros taken from a fresh
+/// zeroed allocation, whose pages the operating system maps lazily, so they never became
+/// resident. Here the finished temporary file is opened for its metadata only, each dataset's
+/// storage address is looked up, and the values are written there block by block, so peak
+/// memory stays one block whatever the size of the grid.
+fn fill_produced(
+    path: &Path,
+    tmp_path: &Path,
+    sink: &mut LimitedWriter<&std::fs::File>,
+    produced: &[(String, super::Produced)],
+) -> Result<(), OutputError> {
+    use std::io::{Seek, SeekFrom};
+    let io_err = |source| OutputError::Io {
+        path: tmp_path.to_owned(),
+        action: "cannot write temporary result file",
+        source,
+    };
+    let file = h5::File::open_streaming(tmp_path).map_err(|e| hdf5_err(path, "/".into(), e))?;
+    for (object, data) in produced {
+        let ds = file.dataset(object.trim_start_matches('/')).map_err(|e| hdf5_err(path, object.clone(), e))?;
+        let layout = ds.layout().map_err(|e| hdf5_err(path, object.clone(), e))?;
+        let address = match layout {
+            h5::Layout::Contiguous { address: Some(a), size } if size == 8 * data.len() as u64 => a,
+            other => {
+                return Err(OutputError::Unsupported {
+                    path: path.to_owned(),
+                    object: object.clone(),
+                    what: format!("storage of a produced dataset came out as {other:?}, expected {} contiguous bytes", 8 * data.len()),
+                })
+            }
+        };
+        sink.inner.seek(SeekFrom::Start(address)).map_err(io_err)?;
+        let mut bytes = Vec::with_capacity(8 * super::Produced::BLOCK);
+        let mut failed = None;
+        data.for_each_block(|_, block| {
+            if failed.is_some() {
+                return;
+            }
+            bytes.clear();
+            for v in block {
+                bytes.extend_from_slice(&v.to_le_bytes());
+            }
+            if let Err(e) = sink.write_all(&bytes) {
+                failed = Some(e);
+            }
+        });
+        if let Some(e) = failed {
+            return Err(io_err(e));
+        }
+    }
+    sink.inner.seek(SeekFrom::End(0)).map_err(io_err)?;
+    Ok(())
 }
 
 /// Write `bytes` to `path` with the same atomic, no-silent-overwrite procedure as
@@ -208,36 +271,50 @@ pub fn read(path: impl AsRef<Path>) -> Result<ResultFile, OutputError> {
 // ---------------------------------------------------------------------------------------------
 // Writing
 
-fn build(file: &ResultFile) -> h5::FileBuilder {
+/// Produced datasets smaller than this are simply materialised (and may be stored compactly).
+const PRODUCED_MIN_ELEMENTS: usize = 1 << 16;
+
+/// The builder for `file`; produced datasets are staged as zeros and listed in `produced` by
+/// object path, to be filled by [`fill_produced`].
+fn build(file: &ResultFile, produced: &mut Vec<(String, super::Produced)>) -> h5::FileBuilder {
     let mut b = h5::FileBuilder::new();
     for (name, value) in &file.attrs {
         b.set_attr(name, to_h5_attr(value));
     }
     for g in &file.groups {
         let mut gb = b.create_group(&g.name);
-        fill_group(&mut gb, g);
+        fill_group(&mut gb, g, &format!("/{}", g.name), produced);
         b.add_group(gb.finish());
     }
     b
 }
 
-fn fill_group(gb: &mut h5::GroupBuilder, g: &Group) {
+fn fill_group(gb: &mut h5::GroupBuilder, g: &Group, at: &str, produced: &mut Vec<(String, super::Produced)>) {
     for (name, value) in &g.attrs {
         gb.set_attr(name, to_h5_attr(value));
     }
     for d in &g.datasets {
         let db = gb.create_dataset(&d.name);
+        if let DataBuf::Produced(p) = &d.data {
+            if p.len() >= PRODUCED_MIN_ELEMENTS {
+                produced.push((format!("{at}/{}", d.name), p.clone()));
+            }
+        }
         write_dataset(db, d);
     }
     for sub in &g.groups {
         let mut sb = gb.create_group(&sub.name);
-        fill_group(&mut sb, sub);
+        fill_group(&mut sb, sub, &format!("{at}/{}", sub.name), produced);
         gb.add_group(sb.finish());
     }
 }
 
 fn write_dataset(db: &mut h5::DatasetBuilder, d: &Dataset) {
     match &d.data {
+        // A zeroed allocation: its pages stay unmapped until written, and the builder only
+        // reads them (see `fill_produced`).
+        DataBuf::Produced(p) if p.len() >= PRODUCED_MIN_ELEMENTS => db.with_raw_data(h5::make_f64_type(), vec![0u8; 8 * p.len()], p.len() as u64),
+        DataBuf::Produced(p) => db.with_f64_data(&p.to_vec()),
         DataBuf::F64(v) => db.with_f64_data(v),
         DataBuf::F32(v) => db.with_f32_data(v),
         DataBuf::I64(v) => db.with_i64_data(v),

@@ -87,7 +87,7 @@ mod model;
 pub use h5::{
     read, write_atomic, write_atomic_with, write_bytes_atomic, WriteOptions, FAULT_ENV_VAR,
 };
-pub use model::{AttrValue, DataBuf, Dataset, Group, ResultFile, TreeError};
+pub use model::{AttrValue, DataBuf, Dataset, Group, Produced, ResultFile, TreeError};
 
 use std::path::PathBuf;
 

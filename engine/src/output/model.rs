@@ -1,6 +1,7 @@
 //! The in-memory result tree: what a result file holds, independent of HDF5.
 
 use std::fmt;
+use std::sync::Arc;
 
 /// Value of an attribute on the root, a group or a dataset.
 #[derive(Debug, Clone, PartialEq)]
@@ -136,6 +137,84 @@ pub enum DataBuf {
     U8(Vec<u8>),
     /// UTF-8 strings, one per element (no NUL characters).
     Str(Vec<String>),
+    /// 64-bit floats computed block by block while the file is written (large voxel grids), so
+    /// the whole array never sits in memory. Written and read back exactly as [`DataBuf::F64`].
+    Produced(Produced),
+}
+
+/// Elements produced on demand: `fill(start, out)` writes elements `start .. start + out.len()`.
+#[derive(Clone)]
+pub struct Produced {
+    len: usize,
+    fill: Arc<dyn Fn(usize, &mut [f64]) + Send + Sync>,
+}
+
+impl Produced {
+    /// Elements per block when a produced array is walked.
+    pub const BLOCK: usize = 1 << 16;
+
+    /// `len` elements made by `fill`, which must give the same values whenever it is called.
+    pub fn new(len: usize, fill: impl Fn(usize, &mut [f64]) + Send + Sync + 'static) -> Self {
+        Produced { len, fill: Arc::new(fill) }
+    }
+
+    /// Number of elements.
+    pub fn len(&self) -> usize {
+        self.len
+    }
+
+    /// Whether there are no elements.
+    pub fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+
+    /// Writes elements `start .. start + out.len()` into `out`.
+    pub fn fill(&self, start: usize, out: &mut [f64]) {
+        assert!(start + out.len() <= self.len, "produced range past the end");
+        (self.fill)(start, out)
+    }
+
+    /// Calls `f(start, block)` for consecutive blocks of at most [`Produced::BLOCK`] elements.
+    pub fn for_each_block(&self, mut f: impl FnMut(usize, &[f64])) {
+        let mut buf = vec![0.0; Self::BLOCK.min(self.len)];
+        let mut start = 0;
+        while start < self.len {
+            let k = Self::BLOCK.min(self.len - start);
+            self.fill(start, &mut buf[..k]);
+            f(start, &buf[..k]);
+            start += k;
+        }
+    }
+
+    /// All elements in one vector.
+    pub fn to_vec(&self) -> Vec<f64> {
+        let mut v = vec![0.0; self.len];
+        if self.len > 0 {
+            self.fill(0, &mut v);
+        }
+        v
+    }
+
+    fn bits_equal_slice(&self, other: &[f64]) -> bool {
+        if other.len() != self.len {
+            return false;
+        }
+        let mut same = true;
+        self.for_each_block(|start, b| same &= b.iter().zip(&other[start..]).all(|(x, y)| x.to_bits() == y.to_bits()));
+        same
+    }
+}
+
+impl fmt::Debug for Produced {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "Produced({} f64)", self.len)
+    }
+}
+
+impl PartialEq for Produced {
+    fn eq(&self, other: &Self) -> bool {
+        self.len == other.len && self.bits_equal_slice(&other.to_vec())
+    }
 }
 
 impl DataBuf {
@@ -151,6 +230,7 @@ impl DataBuf {
             DataBuf::U16(v) => v.len(),
             DataBuf::U8(v) => v.len(),
             DataBuf::Str(v) => v.len(),
+            DataBuf::Produced(p) => p.len(),
         }
     }
 
@@ -162,7 +242,7 @@ impl DataBuf {
     /// Element type name as used in listings and in the h5py check (numpy spelling).
     pub fn type_name(&self) -> &'static str {
         match self {
-            DataBuf::F64(_) => "float64",
+            DataBuf::F64(_) | DataBuf::Produced(_) => "float64",
             DataBuf::F32(_) => "float32",
             DataBuf::I64(_) => "int64",
             DataBuf::I32(_) => "int32",
@@ -186,6 +266,7 @@ impl DataBuf {
             DataBuf::U16(v) => v.iter().map(|&x| f64::from(x)).collect(),
             DataBuf::U8(v) => v.iter().map(|&x| f64::from(x)).collect(),
             DataBuf::Str(_) => return None,
+            DataBuf::Produced(p) => p.to_vec(),
         })
     }
 
@@ -198,6 +279,8 @@ impl DataBuf {
             (DataBuf::F32(a), DataBuf::F32(b)) => {
                 a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits())
             }
+            (DataBuf::Produced(p), DataBuf::F64(v)) | (DataBuf::F64(v), DataBuf::Produced(p)) => p.bits_equal_slice(v),
+            (DataBuf::Produced(p), DataBuf::Produced(q)) => p.len() == q.len() && p.bits_equal_slice(&q.to_vec()),
             _ => self == other,
         }
     }

@@ -411,25 +411,68 @@ impl Tally {
 
     /// Mean per history and its standard error for each bin, over `histories` histories.
     pub fn mean_and_sigma(&self, histories: u64) -> (Vec<f64>, Vec<f64>) {
-        let n = histories.max(1) as f64;
-        let stats = |s: f64, s2: f64| {
-            let m = s / n;
-            let m2 = s2 / n;
-            let var = if histories > 1 { ((m2 - m * m) / (n - 1.0)).max(0.0) } else { 0.0 };
-            (m, var.sqrt())
-        };
         match &self.store {
-            Store::Dense { sum, sum2, .. } => sum.iter().zip(sum2).map(|(a, b)| stats(from_fixed(*a), from_fixed(*b))).unzip(),
-            Store::Shared { sums, .. } => (0..sums.bins)
-                .map(|i| {
-                    let (a, b) = sums.words(i);
-                    if a == u64::MAX || b == u64::MAX {
-                        (f64::NAN, f64::NAN)
-                    } else {
-                        stats(a as f64 / SHARED_SUM_SCALE, b as f64 / SHARED_SUM2_SCALE)
-                    }
-                })
-                .unzip(),
+            Store::Dense { sum, sum2, .. } => sum.iter().zip(sum2).map(|(a, b)| bin_stats(from_fixed(*a), from_fixed(*b), histories)).unzip(),
+            Store::Shared { sums, .. } => (0..sums.bins).map(|i| shared_bin_stats(sums, i, histories)).unzip(),
+        }
+    }
+
+    /// The per-bin statistics of [`Tally::mean_and_sigma`] bin by bin, without building the
+    /// whole vectors: a shared store is read in place (no copy of a large grid); a dense one is
+    /// evaluated once.
+    pub fn bin_stats_source(&self, histories: u64) -> BinStats {
+        match &self.store {
+            Store::Shared { sums, .. } => BinStats { histories, store: BinStatsStore::Shared(Arc::clone(sums)) },
+            Store::Dense { .. } => {
+                let (m, s) = self.mean_and_sigma(histories);
+                BinStats { histories, store: BinStatsStore::Evaluated(Arc::new((m, s))) }
+            }
+        }
+    }
+}
+
+/// Mean and standard error of one bin from its sums over `histories` histories.
+#[inline]
+fn bin_stats(s: f64, s2: f64, histories: u64) -> (f64, f64) {
+    let n = histories.max(1) as f64;
+    let m = s / n;
+    let m2 = s2 / n;
+    let var = if histories > 1 { ((m2 - m * m) / (n - 1.0)).max(0.0) } else { 0.0 };
+    (m, var.sqrt())
+}
+
+/// [`bin_stats`] of bin `i` of a shared store; NaN for a saturated bin.
+#[inline]
+fn shared_bin_stats(sums: &SharedSums, i: usize, histories: u64) -> (f64, f64) {
+    let (a, b) = sums.words(i);
+    if a == u64::MAX || b == u64::MAX {
+        (f64::NAN, f64::NAN)
+    } else {
+        bin_stats(a as f64 / SHARED_SUM_SCALE, b as f64 / SHARED_SUM2_SCALE, histories)
+    }
+}
+
+/// Per-bin mean and standard error of a tally, readable bin by bin (see
+/// [`Tally::bin_stats_source`]); cheap to clone, shares the tally's sums.
+#[derive(Debug, Clone)]
+pub struct BinStats {
+    histories: u64,
+    store: BinStatsStore,
+}
+
+#[derive(Debug, Clone)]
+enum BinStatsStore {
+    Shared(Arc<SharedSums>),
+    Evaluated(Arc<(Vec<f64>, Vec<f64>)>),
+}
+
+impl BinStats {
+    /// (mean, standard error) of bin `i`: the same bits as [`Tally::mean_and_sigma`] gives.
+    #[inline]
+    pub fn get(&self, i: usize) -> (f64, f64) {
+        match &self.store {
+            BinStatsStore::Shared(sums) => shared_bin_stats(sums, i, self.histories),
+            BinStatsStore::Evaluated(v) => (v.0[i], v.1[i]),
         }
     }
 }

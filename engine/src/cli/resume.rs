@@ -26,7 +26,7 @@ pub struct Args {
 
 /// Runs `dosemill resume`; returns the exit code.
 pub fn run(args: Args) -> anyhow::Result<i32> {
-    let c = match Checkpoint::read(&args.checkpoint) {
+    let c = match Checkpoint::read_header(&args.checkpoint) {
         Ok(c) => c,
         Err(e) => {
             eprintln!("dosemill: {e}");

@@ -328,7 +328,7 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
 
     // Resume or start afresh; never overwrite silently.
     let saved = if options.resume && ckpt_path.exists() {
-        let c = Checkpoint::read(&ckpt_path)?;
+        let c = Checkpoint::read_header(&ckpt_path)?;
         c.check_identity(&identity, &ckpt_path)?;
         if c.header.job.shard != options.shard {
             anyhow::bail!("{}: checkpoint of {} but this job is {}", ckpt_path.display(), shard_text(c.header.job.shard), shard_text(options.shard));
@@ -354,7 +354,10 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
     };
     let (mut acc, start_time) = match &saved {
         Some(c) => {
-            let r = c.to_result(&problem, &ckpt_path)?;
+            let (h, r) = Checkpoint::load_result(&problem, &ckpt_path)?;
+            if h != c.header {
+                anyhow::bail!("{}: the checkpoint changed while it was being read; run again", ckpt_path.display());
+            }
             if let Some(bad) = r.chunks.iter().find(|ch| plan.binary_search(ch).is_err()) {
                 anyhow::bail!("{}: holds chunk {bad}, which this job does not run", ckpt_path.display());
             }
@@ -445,8 +448,7 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
             }
             let more = acc.chunks.len() < plan.len();
             if more && (chunks_since >= every_chunks || last_ckpt.elapsed().as_secs_f64() >= every_s) {
-                let c = Checkpoint::from_result(header(acc.histories, wall_before + session.elapsed().as_secs_f64()), &acc);
-                if let Err(e) = c.write(&ckpt_path) {
+                if let Err(e) = Checkpoint::write_result(&header(acc.histories, wall_before + session.elapsed().as_secs_f64()), &acc, &ckpt_path) {
                     eprintln!("dosemill: warning: {}: {e}", ckpt_path.display());
                     warnings.push("a checkpoint could not be written".to_string());
                 }
@@ -475,8 +477,7 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
     };
     if end != JobEnd::Complete {
         // The checkpoint first: it is what a later resume needs.
-        let c = Checkpoint::from_result(header(acc.histories, acc.wall_time_s), &acc);
-        c.write(&ckpt_path).map_err(|e| anyhow::anyhow!("{}: {e}", ckpt_path.display()))?;
+        Checkpoint::write_result(&header(acc.histories, acc.wall_time_s), &acc, &ckpt_path).map_err(|e| anyhow::anyhow!("{}: {e}", ckpt_path.display()))?;
     }
     let meta = RunMeta {
         deck_text: input.deck_text.to_string(),

@@ -168,6 +168,33 @@ pub fn write_bytes_atomic(
     })
 }
 
+/// Write a file produced by `fill` to `path` with the same atomic, no-silent-overwrite
+/// procedure as [`write_atomic`], streaming: nothing needs to be assembled in memory first.
+/// Honours the fault-injection variable [`FAULT_ENV_VAR`].
+pub fn write_stream_atomic(
+    path: impl AsRef<Path>,
+    overwrite: bool,
+    fill: impl FnOnce(&mut dyn Write) -> io::Result<()>,
+) -> Result<(), OutputError> {
+    let path = path.as_ref();
+    let options = WriteOptions::from_env(overwrite);
+    if !options.overwrite && path.exists() {
+        return Err(OutputError::Exists {
+            path: path.to_owned(),
+        });
+    }
+    commit_atomic(path, &options, |sink, tmp_path| {
+        let mut w = io::BufWriter::with_capacity(1 << 20, sink);
+        fill(&mut w)
+            .and_then(|()| w.flush())
+            .map_err(|source| OutputError::Io {
+                path: tmp_path.to_owned(),
+                action: "cannot write temporary file",
+                source,
+            })
+    })
+}
+
 /// Create a temporary file beside `path`, let `fill` write it, fsync, and move it into place
 /// (refusing an existing `path` unless `options.overwrite`). The temporary file is removed on
 /// every error path, so `path` is either the old file or the complete new one.

@@ -85,7 +85,8 @@ mod h5;
 mod model;
 
 pub use h5::{
-    read, write_atomic, write_atomic_with, write_bytes_atomic, WriteOptions, FAULT_ENV_VAR,
+    read, write_atomic, write_atomic_with, write_bytes_atomic, write_stream_atomic, WriteOptions,
+    FAULT_ENV_VAR,
 };
 pub use model::{AttrValue, DataBuf, Dataset, Group, Produced, ResultFile, TreeError};
 

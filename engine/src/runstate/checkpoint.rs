@@ -22,6 +22,7 @@ use super::{Identity, ShardSpec};
 use crate::transport::{Problem, RunResult};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
+use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
 
 const MAGIC: &[u8; 8] = b"DMCKPT01";
@@ -111,6 +112,209 @@ pub enum CheckpointError {
     Write(#[from] crate::output::OutputError),
 }
 
+/// Raw sums of one tally for the encoder: its bin count and bin `i`'s (sum, sum of squares).
+type RawBins<'a> = (usize, &'a dyn Fn(usize) -> (u128, u128));
+
+/// A writer that hashes what passes through it.
+struct Hashing<W> {
+    inner: W,
+    hash: Sha256,
+}
+
+impl<W: Write> Write for Hashing<W> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        let n = self.inner.write(buf)?;
+        self.hash.update(&buf[..n]);
+        Ok(n)
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.inner.flush()
+    }
+}
+
+/// Streams the encoding (format above) of `header`, the tallies and `chunks` into `w`.
+fn encode_into(w: &mut dyn Write, header: &Header, tallies: &[RawBins<'_>], chunks: &[u64]) -> std::io::Result<()> {
+    let json = serde_json::to_vec(header).expect("header serialises");
+    let mut h = Hashing { inner: w, hash: Sha256::new() };
+    h.write_all(MAGIC)?;
+    h.write_all(&(json.len() as u64).to_le_bytes())?;
+    h.write_all(&json)?;
+    h.write_all(&(tallies.len() as u64).to_le_bytes())?;
+    for (bins, raw) in tallies {
+        h.write_all(&(*bins as u64).to_le_bytes())?;
+        for i in 0..*bins {
+            h.write_all(&raw(i).0.to_le_bytes())?;
+        }
+        for i in 0..*bins {
+            h.write_all(&raw(i).1.to_le_bytes())?;
+        }
+    }
+    h.write_all(&(chunks.len() as u64).to_le_bytes())?;
+    for c in chunks {
+        h.write_all(&c.to_le_bytes())?;
+    }
+    let digest = h.hash.finalize();
+    h.inner.write_all(&digest)
+}
+
+/// A reader that hashes what it hands out and reports a short file as corruption.
+struct Reading<'p, R> {
+    inner: R,
+    hash: Sha256,
+    path: &'p Path,
+}
+
+impl<R: Read> Reading<'_, R> {
+    fn bad(&self, what: &str) -> CheckpointError {
+        CheckpointError::Corrupt { path: self.path.into(), what: what.to_string() }
+    }
+    fn exact(&mut self, buf: &mut [u8], what: &str) -> Result<(), CheckpointError> {
+        match self.inner.read_exact(buf) {
+            Ok(()) => {
+                self.hash.update(&*buf);
+                Ok(())
+            }
+            Err(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => Err(self.bad(what)),
+            Err(source) => Err(CheckpointError::Io { path: self.path.into(), source }),
+        }
+    }
+    fn u64(&mut self) -> Result<u64, CheckpointError> {
+        let mut b = [0u8; 8];
+        self.exact(&mut b, "unexpected end of file")?;
+        Ok(u64::from_le_bytes(b))
+    }
+}
+
+/// What the decoder does with the saved sums: told each tally's bin count, then handed the
+/// sums (`squares` false) and the squares (true) block by block.
+trait SumsSink {
+    fn tally(&mut self, index: usize, bins: usize) -> Result<(), String>;
+    fn values(&mut self, index: usize, squares: bool, start: usize, values: &[u128]);
+}
+
+/// Streams a checkpoint from `r` (format above) into `sink`; returns the header and the
+/// completed chunks. The checksum is verified at the end: a caller must discard what the sink
+/// received if this fails.
+fn decode_from(r: impl Read, path: &Path, sink: &mut dyn SumsSink) -> Result<(Header, Vec<u64>), CheckpointError> {
+    let mut rd = Reading { inner: r, hash: Sha256::new(), path };
+    let mut magic = [0u8; 8];
+    rd.exact(&mut magic, "wrong magic bytes (expected a DMCKPT01 file)")?;
+    if &magic != MAGIC {
+        return Err(rd.bad("wrong magic bytes (expected a DMCKPT01 file)"));
+    }
+    let h = rd.u64()?;
+    let mut hb = Vec::new();
+    (&mut rd.inner).take(h).read_to_end(&mut hb).map_err(|source| CheckpointError::Io { path: path.into(), source })?;
+    if hb.len() as u64 != h {
+        return Err(rd.bad("header runs past the end"));
+    }
+    rd.hash.update(&hb);
+    let header: Header = serde_json::from_slice(&hb).map_err(|e| rd.bad(&format!("header: {e}")))?;
+    if header.format != 1 {
+        return Err(rd.bad(&format!("format version {} (this program reads 1)", header.format)));
+    }
+    let t = rd.u64()?;
+    const BLOCK: usize = 1 << 14;
+    let mut bytes = vec![0u8; 16 * BLOCK];
+    let mut vals = vec![0u128; BLOCK];
+    for index in 0..t as usize {
+        let b = usize::try_from(rd.u64()?).map_err(|_| rd.bad("bin count overflows"))?;
+        sink.tally(index, b).map_err(|what| rd.bad(&what))?;
+        for squares in [false, true] {
+            let mut start = 0;
+            while start < b {
+                let k = BLOCK.min(b - start);
+                rd.exact(&mut bytes[..16 * k], "tally runs past the end")?;
+                for (v, c) in vals.iter_mut().zip(bytes[..16 * k].chunks_exact(16)) {
+                    *v = u128::from_le_bytes(c.try_into().expect("16 bytes"));
+                }
+                sink.values(index, squares, start, &vals[..k]);
+                start += k;
+            }
+        }
+    }
+    let c = rd.u64()?;
+    let mut chunks = Vec::new();
+    for _ in 0..c {
+        chunks.push(rd.u64()?);
+    }
+    let expected = std::mem::take(&mut rd.hash).finalize();
+    let mut digest = [0u8; 32];
+    match rd.inner.read_exact(&mut digest) {
+        Ok(()) => {}
+        Err(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => return Err(rd.bad("checksum mismatch (file truncated or damaged)")),
+        Err(source) => return Err(CheckpointError::Io { path: path.into(), source }),
+    }
+    if digest != expected.as_slice() {
+        return Err(rd.bad("checksum mismatch (file truncated or damaged)"));
+    }
+    let mut extra = [0u8; 1];
+    match rd.inner.read(&mut extra) {
+        Ok(0) => {}
+        Ok(_) => return Err(rd.bad("trailing bytes after the checksum")),
+        Err(source) => return Err(CheckpointError::Io { path: path.into(), source }),
+    }
+    Ok((header, chunks))
+}
+
+/// Collects the sums into vectors.
+#[derive(Default)]
+struct Collect(Vec<(Vec<u128>, Vec<u128>)>);
+
+impl SumsSink for Collect {
+    fn tally(&mut self, _: usize, _: usize) -> Result<(), String> {
+        self.0.push((Vec::new(), Vec::new()));
+        Ok(())
+    }
+    fn values(&mut self, index: usize, squares: bool, _: usize, values: &[u128]) {
+        let t = &mut self.0[index];
+        if squares { &mut t.1 } else { &mut t.0 }.extend_from_slice(values);
+    }
+}
+
+/// Discards the sums (reading the header, chunk list and checksum only).
+struct Discard;
+
+impl SumsSink for Discard {
+    fn tally(&mut self, _: usize, _: usize) -> Result<(), String> {
+        Ok(())
+    }
+    fn values(&mut self, _: usize, _: bool, _: usize, _: &[u128]) {}
+}
+
+/// Loads the sums straight into a run result's tallies, a block at a time.
+struct IntoResult<'a> {
+    result: &'a mut RunResult,
+    squares_pending: Vec<u128>,
+    tallies_seen: usize,
+}
+
+impl SumsSink for IntoResult<'_> {
+    fn tally(&mut self, index: usize, bins: usize) -> Result<(), String> {
+        let scorers = self.result.scorers.len();
+        let s = self.result.scorers.get_mut(index).ok_or_else(|| format!("more tallies saved than the deck's {scorers} scores"))?;
+        if s.tally().len() != bins {
+            return Err(format!("score {index}: {bins} bins saved, the deck gives {}", s.tally().len()));
+        }
+        let z = s.tally().zeroed_like();
+        *s.tally_mut() = z;
+        self.tallies_seen += 1;
+        Ok(())
+    }
+    fn values(&mut self, index: usize, squares: bool, start: usize, values: &[u128]) {
+        // Sums and squares arrive in separate passes; pair each block of squares with zero sums
+        // (adding is exact, so the order of the two passes does not matter).
+        self.squares_pending.clear();
+        self.squares_pending.resize(values.len(), 0);
+        let t = self.result.scorers[index].tally_mut();
+        if squares {
+            t.add_raw_at(start, &self.squares_pending, values);
+        } else {
+            t.add_raw_at(start, values, &self.squares_pending);
+        }
+    }
+}
+
 impl Checkpoint {
     /// The state of `result` (flushed tallies) for `header`.
     pub fn from_result(header: Header, result: &RunResult) -> Self {
@@ -121,102 +325,75 @@ impl Checkpoint {
         Checkpoint { header, tallies, chunks: result.chunks.clone() }
     }
 
-    /// The saved state as a run result of `problem`; fails if the tally shapes differ.
-    pub fn to_result(&self, problem: &Problem, path: &Path) -> Result<RunResult, CheckpointError> {
+    /// Writes the checkpoint of `result` for `header` atomically to `path`, streaming the sums
+    /// straight from the tallies (no copy of a large voxel grid is made).
+    pub fn write_result(header: &Header, result: &RunResult, path: &Path) -> Result<(), CheckpointError> {
+        let raws: Vec<Box<dyn Fn(usize) -> (u128, u128) + '_>> =
+            result.scorers.iter().map(|s| Box::new(move |i| s.tally().raw_bin(i)) as Box<dyn Fn(usize) -> (u128, u128)>).collect();
+        let tallies: Vec<RawBins<'_>> = result.scorers.iter().zip(&raws).map(|(s, f)| (s.tally().len(), &**f)).collect();
+        crate::output::write_stream_atomic(path, true, |w| encode_into(w, header, &tallies, &result.chunks))?;
+        Ok(())
+    }
+
+    /// Reads the checkpoint at `path` straight into a run result of `problem` (a block of sums
+    /// at a time), with its header; fails if the tally shapes differ or the file is damaged.
+    pub fn load_result(problem: &Problem, path: &Path) -> Result<(Header, RunResult), CheckpointError> {
+        let f = std::fs::File::open(path).map_err(|source| CheckpointError::Io { path: path.into(), source })?;
         let mut r = RunResult::empty(problem);
-        if r.scorers.len() != self.tallies.len() {
-            return Err(CheckpointError::Corrupt { path: path.into(), what: format!("{} tallies saved, the deck has {} scores", self.tallies.len(), r.scorers.len()) });
+        let mut sink = IntoResult { result: &mut r, squares_pending: Vec::new(), tallies_seen: 0 };
+        let (header, chunks) = decode_from(std::io::BufReader::with_capacity(1 << 20, f), path, &mut sink)?;
+        let seen = sink.tallies_seen;
+        if seen != r.scorers.len() {
+            return Err(CheckpointError::Corrupt { path: path.into(), what: format!("{seen} tallies saved, the deck has {} scores", r.scorers.len()) });
         }
-        for (i, (s, (sum, sum2))) in r.scorers.iter_mut().zip(&self.tallies).enumerate() {
-            if s.tally().len() != sum.len() {
-                return Err(CheckpointError::Corrupt { path: path.into(), what: format!("score {i}: {} bins saved, the deck gives {}", sum.len(), s.tally().len()) });
-            }
-            s.tally_mut().load_raw(sum, sum2);
-        }
-        r.histories = self.header.histories_done;
-        r.chunks = self.chunks.clone();
-        r.wall_time_s = self.header.wall_time_s;
-        Ok(r)
+        r.histories = header.histories_done;
+        r.chunks = chunks;
+        r.wall_time_s = header.wall_time_s;
+        Ok((header, r))
+    }
+
+    fn raw_bins(&self) -> Vec<Box<dyn Fn(usize) -> (u128, u128) + '_>> {
+        self.tallies.iter().map(|(a, b)| Box::new(move |i: usize| (a[i], b[i])) as Box<dyn Fn(usize) -> (u128, u128)>).collect()
     }
 
     /// Encodes the checkpoint (format above).
     pub fn encode(&self) -> Vec<u8> {
-        let header = serde_json::to_vec(&self.header).expect("header serialises");
-        let bins: usize = self.tallies.iter().map(|t| t.0.len()).sum();
-        let mut out = Vec::with_capacity(64 + header.len() + bins * 32 + self.chunks.len() * 8);
-        out.extend_from_slice(MAGIC);
-        out.extend_from_slice(&(header.len() as u64).to_le_bytes());
-        out.extend_from_slice(&header);
-        out.extend_from_slice(&(self.tallies.len() as u64).to_le_bytes());
-        for (sum, sum2) in &self.tallies {
-            out.extend_from_slice(&(sum.len() as u64).to_le_bytes());
-            for v in sum.iter().chain(sum2) {
-                out.extend_from_slice(&v.to_le_bytes());
-            }
-        }
-        out.extend_from_slice(&(self.chunks.len() as u64).to_le_bytes());
-        for c in &self.chunks {
-            out.extend_from_slice(&c.to_le_bytes());
-        }
-        let digest = Sha256::digest(&out);
-        out.extend_from_slice(&digest);
+        let raws = self.raw_bins();
+        let tallies: Vec<RawBins<'_>> = self.tallies.iter().zip(&raws).map(|(t, f)| (t.0.len(), &**f)).collect();
+        let mut out = Vec::new();
+        encode_into(&mut out, &self.header, &tallies, &self.chunks).expect("writing to memory");
         out
     }
 
     /// Decodes a checkpoint read from `path`.
     pub fn decode(bytes: &[u8], path: &Path) -> Result<Self, CheckpointError> {
-        let bad = |what: &str| CheckpointError::Corrupt { path: path.into(), what: what.to_string() };
-        if bytes.len() < MAGIC.len() + 8 + 32 || &bytes[..8] != MAGIC {
-            return Err(bad("wrong magic bytes (expected a DMCKPT01 file)"));
-        }
-        let (body, digest) = bytes.split_at(bytes.len() - 32);
-        if Sha256::digest(body).as_slice() != digest {
-            return Err(bad("checksum mismatch (file truncated or damaged)"));
-        }
-        let mut at = 8usize;
-        let u64_at = |at: &mut usize| -> Result<u64, CheckpointError> {
-            let b = body.get(*at..*at + 8).ok_or_else(|| bad("unexpected end of file"))?;
-            *at += 8;
-            Ok(u64::from_le_bytes(b.try_into().expect("8 bytes")))
-        };
-        let h = u64_at(&mut at)? as usize;
-        let hb = body.get(at..at.saturating_add(h)).ok_or_else(|| bad("header runs past the end"))?;
-        let header: Header = serde_json::from_slice(hb).map_err(|e| bad(&format!("header: {e}")))?;
-        if header.format != 1 {
-            return Err(bad(&format!("format version {} (this program reads 1)", header.format)));
-        }
-        at += h;
-        let t = u64_at(&mut at)? as usize;
-        let mut tallies = Vec::new();
-        for _ in 0..t {
-            let b = u64_at(&mut at)? as usize;
-            let need = b.checked_mul(32).ok_or_else(|| bad("bin count overflows"))?;
-            let raw = body.get(at..at.saturating_add(need)).ok_or_else(|| bad("tally runs past the end"))?;
-            let vals: Vec<u128> = raw.chunks_exact(16).map(|c| u128::from_le_bytes(c.try_into().expect("16 bytes"))).collect();
-            at += need;
-            tallies.push((vals[..b].to_vec(), vals[b..].to_vec()));
-        }
-        let c = u64_at(&mut at)? as usize;
-        let need = c.checked_mul(8).ok_or_else(|| bad("chunk count overflows"))?;
-        let raw = body.get(at..at.saturating_add(need)).ok_or_else(|| bad("chunk list runs past the end"))?;
-        let chunks = raw.chunks_exact(8).map(|c| u64::from_le_bytes(c.try_into().expect("8 bytes"))).collect();
-        at += need;
-        if at != body.len() {
-            return Err(bad("trailing bytes after the chunk list"));
-        }
-        Ok(Checkpoint { header, tallies, chunks })
+        let mut sink = Collect::default();
+        let (header, chunks) = decode_from(bytes, path, &mut sink)?;
+        Ok(Checkpoint { header, tallies: sink.0, chunks })
     }
 
     /// Writes the checkpoint atomically to `path`, replacing the previous one.
     pub fn write(&self, path: &Path) -> Result<(), CheckpointError> {
-        crate::output::write_bytes_atomic(path, &self.encode(), true)?;
+        let raws = self.raw_bins();
+        let tallies: Vec<RawBins<'_>> = self.tallies.iter().zip(&raws).map(|(t, f)| (t.0.len(), &**f)).collect();
+        crate::output::write_stream_atomic(path, true, |w| encode_into(w, &self.header, &tallies, &self.chunks))?;
         Ok(())
     }
 
-    /// Reads a checkpoint.
+    /// Reads a checkpoint, sums included (see [`Checkpoint::read_header`] for a large one).
     pub fn read(path: &Path) -> Result<Self, CheckpointError> {
-        let bytes = std::fs::read(path).map_err(|source| CheckpointError::Io { path: path.into(), source })?;
-        Self::decode(&bytes, path)
+        let f = std::fs::File::open(path).map_err(|source| CheckpointError::Io { path: path.into(), source })?;
+        let mut sink = Collect::default();
+        let (header, chunks) = decode_from(std::io::BufReader::new(f), path, &mut sink)?;
+        Ok(Checkpoint { header, tallies: sink.0, chunks })
+    }
+
+    /// Reads and verifies a whole checkpoint but keeps only its header and chunk list (the
+    /// returned checkpoint has no tallies): constant memory whatever the size of the sums.
+    pub fn read_header(path: &Path) -> Result<Self, CheckpointError> {
+        let f = std::fs::File::open(path).map_err(|source| CheckpointError::Io { path: path.into(), source })?;
+        let (header, chunks) = decode_from(std::io::BufReader::new(f), path, &mut Discard)?;
+        Ok(Checkpoint { header, tallies: Vec::new(), chunks })
     }
 
     /// Refuses the checkpoint unless it belongs to the run `current`.

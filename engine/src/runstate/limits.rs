@@ -4,20 +4,17 @@
 //! The estimate counts what grows with the deck: every dense tally bin costs [`BYTES_PER_BIN`]
 //! bytes in each worker's copy, in the merged copy and in the copy being checkpointed
 //! (`threads + 2` copies); a voxel dose bin is a shared tally bin ([`SHARED_BYTES_PER_BIN`] once,
-//! whatever the thread count) plus [`VOXEL_OUTPUT_BYTES_PER_BIN`] while its checkpoint or result
-//! is being written; a voxel geometry costs [`BYTES_PER_GEOMETRY_VOXEL`] per voxel once;
-//! plus a fixed [`BASE_BYTES`] for the interaction tables and the program. The result file
-//! holds two f64 (value and σ) per bin and the checkpoint 32 bytes per bin.
+//! whatever the thread count; its result file and checkpoint are streamed from the tally and
+//! need no copy of it); a voxel geometry costs [`BYTES_PER_GEOMETRY_VOXEL`] per voxel once;
+//! plus a fixed [`BASE_BYTES`] for the interaction tables and the program. On disk the result
+//! file holds five f64 per voxel dose bin (dose, energy, each with σ, and mass) and the
+//! checkpoint 32 bytes per bin.
 
 use crate::deck::{Geometry, ResolvedDeck, ScoreKind, VoxelContent};
 
 /// Bytes per tally bin per copy: two u128 sums, the pending f64 and the last-history u64.
 pub const BYTES_PER_BIN: u64 = 48;
 pub use crate::score::tally::SHARED_BYTES_PER_BIN;
-/// Bytes per voxel dose bin while the result is written: dose, energy (each with σ) and mass as
-/// f64 in the result tree and again in the HDF5 writer (2 × 5 × 8); the checkpoint (32) needs
-/// less.
-pub const VOXEL_OUTPUT_BYTES_PER_BIN: u64 = 80;
 /// Bytes per voxel of a voxel geometry (material index, density, lookup caches).
 pub const BYTES_PER_GEOMETRY_VOXEL: u64 = 18;
 /// Fixed part: tables, program, buffers.
@@ -43,7 +40,7 @@ pub struct Estimate {
 #[derive(Debug, thiserror::Error)]
 pub enum LimitError {
     /// Not enough memory.
-    #[error("the run needs an estimated {} of memory ({bins} tally bins: dense ones × {BYTES_PER_BIN} B × {copies} copies for {threads} threads, voxel dose ones × {} B; {voxels} geometry voxels × {BYTES_PER_GEOMETRY_VOXEL} B, plus {} fixed) but the limit is {} ({source_of_limit}); use fewer or coarser bins, fewer threads (--threads), or set {MEMORY_LIMIT_ENV} if more memory is really available", human(*.needed), SHARED_BYTES_PER_BIN + VOXEL_OUTPUT_BYTES_PER_BIN, human(BASE_BYTES), human(*.limit))]
+    #[error("the run needs an estimated {} of memory ({bins} tally bins: dense ones × {BYTES_PER_BIN} B × {copies} copies for {threads} threads, voxel dose ones × {SHARED_BYTES_PER_BIN} B; {voxels} geometry voxels × {BYTES_PER_GEOMETRY_VOXEL} B, plus {} fixed) but the limit is {} ({source_of_limit}); use fewer or coarser bins, fewer threads (--threads), or set {MEMORY_LIMIT_ENV} if more memory is really available", human(*.needed), human(BASE_BYTES), human(*.limit))]
     Memory {
         /// Estimated need (bytes).
         needed: u64,
@@ -117,9 +114,10 @@ pub fn estimate(deck: &ResolvedDeck, threads: usize) -> Estimate {
     let copies = threads as u64 + 2;
     let memory_bytes = BASE_BYTES
         .saturating_add(dense.saturating_mul(BYTES_PER_BIN).saturating_mul(copies))
-        .saturating_add(shared.saturating_mul(SHARED_BYTES_PER_BIN + VOXEL_OUTPUT_BYTES_PER_BIN))
+        .saturating_add(shared.saturating_mul(SHARED_BYTES_PER_BIN))
         .saturating_add(voxels.saturating_mul(BYTES_PER_GEOMETRY_VOXEL));
-    let disk_bytes = bins.saturating_mul(16 + 32).saturating_add(1 << 20);
+    // Result: value and σ per dense bin, five f64 per voxel dose bin; checkpoint: 32 B per bin.
+    let disk_bytes = dense.saturating_mul(16 + 32).saturating_add(shared.saturating_mul(40 + 32)).saturating_add(1 << 20);
     Estimate { bins, geometry_voxels: voxels, memory_bytes, disk_bytes }
 }
 

@@ -353,19 +353,40 @@ impl Tally {
 
     /// Adds raw sums (in the 2⁻⁵⁰ format of [`Tally::raw`]) into this tally.
     fn add_raw(&mut self, a: &[u128], b: &[u128]) {
+        self.add_raw_at(0, a, b);
+    }
+
+    /// Adds raw sums (format of [`Tally::raw`]) into bins `start .. start + a.len()`; the
+    /// tally must not be a template (see [`Tally::zeroed_like`]).
+    pub fn add_raw_at(&mut self, start: usize, a: &[u128], b: &[u128]) {
+        assert_eq!(a.len(), b.len());
+        assert!(start + a.len() <= self.len(), "raw sums past the last bin");
         match &mut self.store {
             Store::Dense { sum, sum2, .. } => {
-                for i in 0..sum.len() {
-                    sum[i] += a[i];
-                    sum2[i] += b[i];
+                for k in 0..a.len() {
+                    sum[start + k] += a[k];
+                    sum2[start + k] += b[k];
                 }
             }
             Store::Shared { sums, .. } => {
                 assert!(!sums.sum.is_empty() || sums.bins == 0, "adding into a shared-tally template");
-                for i in 0..sums.sum.len() {
-                    add_saturating(&sums.sum[i], shared_word(a[i], FRACTION_BITS - SHARED_SUM_BITS));
-                    add_saturating(&sums.sum2[i], shared_word(b[i], FRACTION_BITS - SHARED_SUM2_BITS));
+                for k in 0..a.len() {
+                    add_saturating(&sums.sum[start + k], shared_word(a[k], FRACTION_BITS - SHARED_SUM_BITS));
+                    add_saturating(&sums.sum2[start + k], shared_word(b[k], FRACTION_BITS - SHARED_SUM2_BITS));
                 }
+            }
+        }
+    }
+
+    /// The raw sums of bin `i` (format of [`Tally::raw`]), without copying the tally.
+    #[inline]
+    pub fn raw_bin(&self, i: usize) -> (u128, u128) {
+        match &self.store {
+            Store::Dense { sum, sum2, .. } => (sum[i], sum2[i]),
+            Store::Shared { sums, .. } => {
+                let up = |v: u64, shift: i32| if v == u64::MAX { u128::MAX } else { (v as u128) << shift };
+                let (a, b) = sums.words(i);
+                (up(a, FRACTION_BITS - SHARED_SUM_BITS), up(b, FRACTION_BITS - SHARED_SUM2_BITS))
             }
         }
     }
@@ -377,11 +398,8 @@ impl Tally {
         match &self.store {
             Store::Dense { sum, sum2, .. } => (Cow::Borrowed(sum.as_slice()), Cow::Borrowed(sum2.as_slice())),
             Store::Shared { sums, .. } => {
-                let up = |v: u64, shift: i32| if v == u64::MAX { u128::MAX } else { (v as u128) << shift };
-                (
-                    Cow::Owned((0..sums.bins).map(|i| up(sums.words(i).0, FRACTION_BITS - SHARED_SUM_BITS)).collect()),
-                    Cow::Owned((0..sums.bins).map(|i| up(sums.words(i).1, FRACTION_BITS - SHARED_SUM2_BITS)).collect()),
-                )
+                let (a, b): (Vec<u128>, Vec<u128>) = (0..sums.bins).map(|i| self.raw_bin(i)).unzip();
+                (Cow::Owned(a), Cow::Owned(b))
             }
         }
     }

@@ -244,7 +244,9 @@ pub fn run_decks(decks: &[PathBuf], options: &Options, only: Option<&[(String, S
                 Ok(r) => {
                     let shown = r.output.display().to_string();
                     if !options.quiet {
-                        println!("{name} [{job}]: {} histories, {} -> {shown}", r.histories, r.note);
+                        // Peak resident memory of the process so far: transport and writing.
+                        let peak = super::bench::peak_rss_bytes().map(|b| format!(" (peak memory {:.3} GiB)", b as f64 / (1u64 << 30) as f64)).unwrap_or_default();
+                        println!("{name} [{job}]: {} histories, {} -> {shown}{peak}", r.histories, r.note);
                     }
                     let status = match r.end {
                         JobEnd::Complete => Ok(r.note),

@@ -94,3 +94,26 @@ fn closed_stdout_ends_quietly() {
     assert!(!err.contains("panicked"), "{err}");
     assert_eq!(o.status.code(), Some(141), "{err}");
 }
+
+// A voxel dose grid's result and checkpoint are streamed, so a plain run needs one copy of the
+// sums (16 B per voxel); a shard file still assembles its raw sums (64 B per voxel more), and
+// the estimate counts that. 8e6 voxels: plain ≈ 64 MiB + 8e6 × (16 + 18) B ≈ 339 MB, sharded
+// ≈ 851 MB; a 600 MB allowance admits the first and refuses the second.
+#[test]
+fn shard_runs_of_large_voxel_grids_count_the_shard_copy() {
+    let dir = scratch("shardmem");
+    let deck = dir.join("vox.toml");
+    std::fs::write(
+        &deck,
+        "# Demo deck (invented scenario).\n[run]\nhistories = 1000\noutput = \"v.h5\"\n\n[source]\nkind = \"pencil\"\nposition_cm = [0, 0, -1]\nenergy_kev = 60\n\n\
+[geometry]\nkind = \"voxels\"\nworld = \"air\"\nvoxels = [200, 200, 200]\nvoxel_size_cm = [0.05, 0.05, 0.05]\n\n[geometry.phantom]\nfill = \"water\"\n\n\
+[[score]]\nname = \"dose\"\nkind = \"voxel_dose\"\nestimator = \"analog\"\n",
+    )
+    .unwrap();
+    let env = [("DOSEMILL_MEMORY_LIMIT_BYTES", "600000000")];
+    let (o, _) = run_measured(&dir, &["run", deck.to_str().unwrap(), "--quiet", "--threads", "2", "--out", dir.to_str().unwrap()], &env);
+    assert!(o.status.success(), "{}", text(&o));
+    let (o, _) = run_measured(&dir, &["run", deck.to_str().unwrap(), "--quiet", "--threads", "2", "--shard", "0/2", "--out", dir.to_str().unwrap()], &env);
+    assert_eq!(o.status.code(), Some(5), "{}", text(&o));
+    assert!(text(&o).contains("needs an estimated 851") && text(&o).contains("limit is 600.0 MB"), "{}", text(&o));
+}

@@ -346,7 +346,7 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
         anyhow::bail!("{} exists; pass --force to overwrite it, or choose another --out folder", out.display());
     }
     let out_dir = out.parent().map(Path::to_path_buf).unwrap_or_default();
-    limits::check(resolved, settings.threads, &out_dir).map_err(TooLarge)?;
+    limits::check_with(resolved, settings.threads, &out_dir, options.shard.is_some()).map_err(TooLarge)?;
 
     let (problem, info) = setup::build(resolved)?;
     let n_chunks = crate::rng::chunk_count(settings.histories, settings.chunk_histories);

@@ -99,8 +99,17 @@ fn bins_of(kind: &ScoreKind, geometry_voxels: u64, layers: u64) -> u64 {
     }
 }
 
+/// Bytes per voxel dose bin while a shard file is written: its raw 128-bit sums are assembled
+/// in memory (two u128 and four u64 arrays).
+pub const SHARD_BYTES_PER_VOXEL_BIN: u64 = 64;
+
 /// The estimate for `deck` run on `threads` threads.
 pub fn estimate(deck: &ResolvedDeck, threads: usize) -> Estimate {
+    estimate_with(deck, threads, false)
+}
+
+/// [`estimate`] for a run that is (`sharded`) or is not one shard of a split run.
+pub fn estimate_with(deck: &ResolvedDeck, threads: usize, sharded: bool) -> Estimate {
     let (voxels, layers) = match &deck.geometry {
         Geometry::Slabs(s) => (0, s.layers.len() as u64),
         Geometry::Voxels(v) => match &v.content {
@@ -114,7 +123,7 @@ pub fn estimate(deck: &ResolvedDeck, threads: usize) -> Estimate {
     let copies = threads as u64 + 2;
     let memory_bytes = BASE_BYTES
         .saturating_add(dense.saturating_mul(BYTES_PER_BIN).saturating_mul(copies))
-        .saturating_add(shared.saturating_mul(SHARED_BYTES_PER_BIN))
+        .saturating_add(shared.saturating_mul(SHARED_BYTES_PER_BIN + if sharded { SHARD_BYTES_PER_VOXEL_BIN } else { 0 }))
         .saturating_add(voxels.saturating_mul(BYTES_PER_GEOMETRY_VOXEL));
     // Result: value and σ per dense bin, five f64 per voxel dose bin; checkpoint: 32 B per bin.
     let disk_bytes = dense.saturating_mul(16 + 32).saturating_add(shared.saturating_mul(40 + 32)).saturating_add(1 << 20);
@@ -143,7 +152,12 @@ pub fn free_disk_bytes(folder: &std::path::Path) -> Option<u64> {
 /// Refuses `deck` on `threads` threads when the estimate exceeds the memory limit or the free
 /// space in `out_folder`.
 pub fn check(deck: &ResolvedDeck, threads: usize, out_folder: &std::path::Path) -> Result<Estimate, LimitError> {
-    let e = estimate(deck, threads);
+    check_with(deck, threads, out_folder, false)
+}
+
+/// [`check`] for a run that is (`sharded`) or is not one shard of a split run.
+pub fn check_with(deck: &ResolvedDeck, threads: usize, out_folder: &std::path::Path, sharded: bool) -> Result<Estimate, LimitError> {
+    let e = estimate_with(deck, threads, sharded);
     if let Some((limit, source_of_limit)) = memory_limit() {
         if e.memory_bytes > limit {
             return Err(LimitError::Memory { needed: e.memory_bytes, limit, source_of_limit, bins: e.bins, copies: threads as u64 + 2, threads, voxels: e.geometry_voxels });

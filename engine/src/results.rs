@@ -258,27 +258,28 @@ fn voxel_dose_group(name: &str, v: &crate::score::voxel_dose::VoxelDose, histori
     };
     let to_gy = |e: f64, m: f64| if m > 0.0 { e * JOULE_PER_KEV / (m * 1e-3) } else { 0.0 };
     let shape = [v.dims[2], v.dims[1], v.dims[0]];
-    let produced = |f: Arc<dyn Fn(usize) -> f64 + Send + Sync>| {
+    // Element i of a per-voxel array, as a dataset produced while the file is written.
+    fn produced(n: usize, f: impl Fn(usize) -> f64 + Send + Sync + 'static) -> DataBuf {
         DataBuf::Produced(Produced::new(n, move |start, out| {
             for (k, o) in out.iter_mut().enumerate() {
                 *o = f(start + k);
             }
         }))
-    };
+    }
     let mass_of = Arc::new(mass_of);
-    let dose_of: Arc<dyn Fn(usize) -> f64 + Send + Sync> = { let (s, m) = (stats.clone(), Arc::clone(&mass_of)); Arc::new(move |i| to_gy(s.get(i).0, m(i))) };
-    let dose_sigma_of: Arc<dyn Fn(usize) -> f64 + Send + Sync> = { let (s, m) = (stats.clone(), Arc::clone(&mass_of)); Arc::new(move |i| to_gy(s.get(i).1, m(i))) };
+    let dose_of = { let (s, m) = (stats.clone(), Arc::clone(&mass_of)); move |i: usize| to_gy(s.get(i).0, m(i)) };
+    let dose_sigma_of = { let (s, m) = (stats.clone(), Arc::clone(&mass_of)); move |i: usize| to_gy(s.get(i).1, m(i)) };
     let mut g = Group::with_kind(name, "dose_grid");
     g.set_attr("estimator", match v.estimator {
         crate::score::voxel_dose::DoseEstimator::Analog => "analog",
         crate::score::voxel_dose::DoseEstimator::TrackLength => "track_length",
     });
     g.set_attr("normalisation", "dose (Gy) per source history in each scoring voxel, kerma approximation; array order [z, y, x]");
-    g.add_dataset(Dataset::new("dose", &shape, produced(Arc::clone(&dose_of)), "Gy"));
-    g.add_dataset(Dataset::new("dose_sigma", &shape, produced(Arc::clone(&dose_sigma_of)), "Gy"));
-    g.add_dataset(Dataset::new("energy", &shape, produced({ let s = stats.clone(); Arc::new(move |i| s.get(i).0) }), "keV"));
-    g.add_dataset(Dataset::new("energy_sigma", &shape, produced({ let s = stats.clone(); Arc::new(move |i| s.get(i).1) }), "keV"));
-    g.add_dataset(Dataset::new("mass", &shape, produced({ let m = Arc::clone(&mass_of); Arc::new(move |i| m(i)) }), "g"));
+    g.add_dataset(Dataset::new("dose", &shape, produced(n, dose_of.clone()), "Gy"));
+    g.add_dataset(Dataset::new("dose_sigma", &shape, produced(n, dose_sigma_of.clone()), "Gy"));
+    g.add_dataset(Dataset::new("energy", &shape, produced(n, { let s = stats.clone(); move |i| s.get(i).0 }), "keV"));
+    g.add_dataset(Dataset::new("energy_sigma", &shape, produced(n, { let s = stats.clone(); move |i| s.get(i).1 }), "keV"));
+    g.add_dataset(Dataset::new("mass", &shape, produced(n, { let m = Arc::clone(&mass_of); move |i| m(i) }), "g"));
     let edges_along = |a: usize| -> Vec<f64> {
         let w = l.voxel_size_cm.axis(a) * v.block[a] as f64;
         (0..=v.dims[a]).map(|k| (l.origin_cm.axis(a) + k as f64 * w).min(l.origin_cm.axis(a) + pd[a] as f64 * l.voxel_size_cm.axis(a))).collect()

@@ -152,20 +152,7 @@ pub fn write_bytes_atomic(
     bytes: &[u8],
     overwrite: bool,
 ) -> Result<(), OutputError> {
-    let path = path.as_ref();
-    let options = WriteOptions::from_env(overwrite);
-    if !options.overwrite && path.exists() {
-        return Err(OutputError::Exists {
-            path: path.to_owned(),
-        });
-    }
-    commit_atomic(path, &options, |sink, tmp_path| {
-        sink.write_all(bytes).map_err(|source| OutputError::Io {
-            path: tmp_path.to_owned(),
-            action: "cannot write temporary file",
-            source,
-        })
-    })
+    write_stream_atomic(path, overwrite, |w| w.write_all(bytes))
 }
 
 /// Write a file produced by `fill` to `path` with the same atomic, no-silent-overwrite

@@ -157,6 +157,12 @@ fn encode_into(w: &mut dyn Write, header: &Header, tallies: &[RawBins<'_>], chun
     h.inner.write_all(&digest)
 }
 
+/// Writes the encoding atomically to `path`, replacing the previous checkpoint.
+fn write_encoded(path: &Path, header: &Header, tallies: &[RawBins<'_>], chunks: &[u64]) -> Result<(), CheckpointError> {
+    crate::output::write_stream_atomic(path, true, |w| encode_into(w, header, tallies, chunks))?;
+    Ok(())
+}
+
 /// A reader that hashes what it hands out and reports a short file as corruption.
 struct Reading<'p, R> {
     inner: R,
@@ -316,23 +322,13 @@ impl SumsSink for IntoResult<'_> {
 }
 
 impl Checkpoint {
-    /// The state of `result` (flushed tallies) for `header`.
-    pub fn from_result(header: Header, result: &RunResult) -> Self {
-        let tallies = result.scorers.iter().map(|s| {
-            let (a, b) = s.tally().raw();
-            (a.into_owned(), b.into_owned())
-        }).collect();
-        Checkpoint { header, tallies, chunks: result.chunks.clone() }
-    }
-
     /// Writes the checkpoint of `result` for `header` atomically to `path`, streaming the sums
     /// straight from the tallies (no copy of a large voxel grid is made).
     pub fn write_result(header: &Header, result: &RunResult, path: &Path) -> Result<(), CheckpointError> {
         let raws: Vec<Box<dyn Fn(usize) -> (u128, u128) + '_>> =
             result.scorers.iter().map(|s| Box::new(move |i| s.tally().raw_bin(i)) as Box<dyn Fn(usize) -> (u128, u128)>).collect();
         let tallies: Vec<RawBins<'_>> = result.scorers.iter().zip(&raws).map(|(s, f)| (s.tally().len(), &**f)).collect();
-        crate::output::write_stream_atomic(path, true, |w| encode_into(w, header, &tallies, &result.chunks))?;
-        Ok(())
+        write_encoded(path, header, &tallies, &result.chunks)
     }
 
     /// Reads the checkpoint at `path` straight into a run result of `problem` (a block of sums
@@ -352,16 +348,18 @@ impl Checkpoint {
         Ok((header, r))
     }
 
-    fn raw_bins(&self) -> Vec<Box<dyn Fn(usize) -> (u128, u128) + '_>> {
-        self.tallies.iter().map(|(a, b)| Box::new(move |i: usize| (a[i], b[i])) as Box<dyn Fn(usize) -> (u128, u128)>).collect()
+    /// `f` applied to the saved tallies as the encoder reads them.
+    fn with_raw_bins<T>(&self, f: impl FnOnce(&[RawBins<'_>]) -> T) -> T {
+        let raws: Vec<Box<dyn Fn(usize) -> (u128, u128) + '_>> =
+            self.tallies.iter().map(|(a, b)| Box::new(move |i: usize| (a[i], b[i])) as Box<dyn Fn(usize) -> (u128, u128)>).collect();
+        let tallies: Vec<RawBins<'_>> = self.tallies.iter().zip(&raws).map(|(t, r)| (t.0.len(), &**r)).collect();
+        f(&tallies)
     }
 
     /// Encodes the checkpoint (format above).
     pub fn encode(&self) -> Vec<u8> {
-        let raws = self.raw_bins();
-        let tallies: Vec<RawBins<'_>> = self.tallies.iter().zip(&raws).map(|(t, f)| (t.0.len(), &**f)).collect();
         let mut out = Vec::new();
-        encode_into(&mut out, &self.header, &tallies, &self.chunks).expect("writing to memory");
+        self.with_raw_bins(|t| encode_into(&mut out, &self.header, t, &self.chunks)).expect("writing to memory");
         out
     }
 
@@ -374,10 +372,7 @@ impl Checkpoint {
 
     /// Writes the checkpoint atomically to `path`, replacing the previous one.
     pub fn write(&self, path: &Path) -> Result<(), CheckpointError> {
-        let raws = self.raw_bins();
-        let tallies: Vec<RawBins<'_>> = self.tallies.iter().zip(&raws).map(|(t, f)| (t.0.len(), &**f)).collect();
-        crate::output::write_stream_atomic(path, true, |w| encode_into(w, &self.header, &tallies, &self.chunks))?;
-        Ok(())
+        self.with_raw_bins(|t| write_encoded(path, &self.header, t, &self.chunks))
     }
 
     /// Reads a checkpoint, sums included (see [`Checkpoint::read_header`] for a large one).

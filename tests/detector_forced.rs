@@ -144,7 +144,9 @@ fn compare(a: &RunResult, b: &RunResult, categories: &[usize]) {
 }
 
 /// Water in vacuum: single Compton, single Rayleigh, multiple and total scatter images, with the
-/// default next-event sampling and with coherent directions also drawn from their own law.
+/// default next-event sampling (one point per flight, Russian roulette, coherent directions
+/// also drawn from their own law), without the coherent technique, and from the transport's
+/// collisions without roulette.
 #[test]
 fn forced_detection_matches_analog_scatter_in_water() {
     let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10";
@@ -152,16 +154,26 @@ fn forced_detection_matches_analog_scatter_in_water() {
     let (forced, sf) = batches(&problem(&deck(layers, true, "", "vacuum")), 24_000, 2);
     compare(&analog, &forced, &[1, 2, 3, 5]);
     compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
-    // The optional second technique for coherent directions (balance heuristic), with three
-    // next-event points over the outer face, both set from the deck.
-    let p = problem(&deck(layers, true, "forced_detection_coherent_directions = true\nforced_detection_outer_points = 3", "vacuum"));
+    // Without the second technique for coherent directions, with three next-event points over
+    // the face, both set from the deck.
+    let p = problem(&deck(layers, true, "forced_detection_coherent_directions = false\nforced_detection_face_points = 3", "vacuum"));
     match &p.scorers[0] {
-        Scorer::Detector(d) => assert!(d.setup.spec.fd_coherent_sampling && d.setup.spec.fd_outer_points == 3, "deck keys reach the scorer"),
+        Scorer::Detector(d) => assert!(!d.setup.spec.fd_coherent_sampling && d.setup.spec.fd_face_points == 3, "deck keys reach the scorer"),
         _ => panic!("not a detector"),
     }
     let (forced_coh, sc) = batches(&p, 24_000, 5);
     compare(&analog, &forced_coh, &[1, 2, 3, 5]);
     compare_face_sums(&sa, &sc, &[1, 2, 3, 5]);
+    // Next-event points from the transport's own collisions, without Russian roulette or the
+    // coherent technique.
+    let p = problem(&deck(layers, true, "forced_detection_from = \"collisions\"\nforced_detection_roulette_below = 0\nforced_detection_coherent_directions = false", "vacuum"));
+    match &p.scorers[0] {
+        Scorer::Detector(d) => assert!(!d.setup.spec.fd_along_flights && d.setup.spec.fd_roulette_below == 0.0, "deck keys reach the scorer"),
+        _ => panic!("not a detector"),
+    }
+    let (forced_col, sl) = batches(&p, 24_000, 6);
+    compare(&analog, &forced_col, &[1, 2, 3, 5]);
+    compare_face_sums(&sa, &sl, &[1, 2, 3, 5]);
     // The ROI mean of the forced estimate against the analog crossings of the same FD run.
     let s = detector(&forced.scorers[0]).summary(forced.histories);
     let z = (s.mean[summary::ROI_SCATTER] - s.mean[summary::ROI_SCATTER_ANALOG]) / s.sigma[summary::ROI_SCATTER_ANALOG];
@@ -179,4 +191,64 @@ fn forced_detection_matches_analog_fluorescence_and_scatter_behind_csi() {
     let (forced, sf) = batches(&problem(&deck(layers, true, extra, "air")), 6_000, 4);
     compare(&analog, &forced, &[4, 5]);
     compare_face_sums(&sa, &sf, &[1, 2, 3, 4, 5]);
+}
+
+/// A voxel phantom (water block with a bone sphere and an air cavity, in air): forced
+/// detection along flights walks voxel rays; scatter images and face sums against analog.
+#[test]
+fn forced_detection_matches_analog_behind_a_voxel_phantom() {
+    let deck = |forced: bool| {
+        format!(
+            r#"
+[run]
+histories = 1
+
+[source]
+kind = "point"
+position_cm = [0, 0, -100]
+field = {{ shape = "rectangle", width_cm = 16, height_cm = 16 }}
+field_distance_cm = 100
+
+[source.tube]
+kvp = 80
+filters = ["Al:2.5"]
+
+[geometry]
+kind = "voxels"
+world = "air"
+voxels = [16, 16, 8]
+voxel_size_cm = [1, 1, 1]
+origin_cm = [-8, -8, -12]
+
+[geometry.phantom]
+fill = "water"
+
+[[geometry.phantom.shape]]
+kind = "sphere"
+center_cm = [2, -1, -8]
+radius_cm = 2.5
+material = "cortical_bone"
+region = "bone"
+
+[[geometry.phantom.shape]]
+kind = "box"
+center_cm = [-3, 3, -6]
+half_size_cm = [2, 2, 1]
+material = "air"
+region = "cavity"
+
+[[score]]
+name = "image"
+kind = "detector"
+position_cm = [0, 0, 0]
+size_cm = [24, 24]
+pixel_pitch_cm = 4
+forced_detection = {forced}
+"#
+        )
+    };
+    let (analog, sa) = batches(&problem(&deck(false)), 200_000, 7);
+    let (forced, sf) = batches(&problem(&deck(true)), 10_000, 8);
+    compare(&analog, &forced, &[1, 2, 3, 5]);
+    compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
 }

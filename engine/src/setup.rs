@@ -257,13 +257,34 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                     Some(Medium::new(m, mats.nominal[m as usize]))
                 }
             };
-            // World: the grid plus 1 cm, stretched to hold the source; photons leaving it escape.
+            // World: the grid plus 1 cm, stretched to hold the source and every detector face
+            // (photons leaving it escape, so a face outside would see nothing).
             let gb = grid.bounds();
             let src = vec3(match &d.source.shape {
                 SourceShape::Pencil { position_cm, .. } | SourceShape::Parallel { position_cm, .. } | SourceShape::Point { position_cm, .. } => *position_cm,
             });
+            let (mut lo, mut hi) = (gb.min_cm.min(src), gb.max_cm.max(src));
+            for sc in &d.scores {
+                if let deck::ScoreKind::Detector(det) = &sc.kind {
+                    let n = match det.normal_axis {
+                        deck::Axis::X => 0,
+                        deck::Axis::Y => 1,
+                        deck::Axis::Z => 2,
+                    };
+                    let c = vec3(det.position_cm);
+                    let mut half = Vec3::new(0.0, 0.0, 0.0);
+                    let (u, v) = match n {
+                        0 => (1, 2),
+                        1 => (0, 2),
+                        _ => (0, 1),
+                    };
+                    half = half.with_axis(u, 0.5 * det.size_cm[0]).with_axis(v, 0.5 * det.size_cm[1]);
+                    lo = lo.min(c - half);
+                    hi = hi.max(c + half);
+                }
+            }
             let one = Vec3::new(1.0, 1.0, 1.0);
-            let bounds = dosemill_geometry::Aabb::new(gb.min_cm.min(src) - one, gb.max_cm.max(src) + one);
+            let bounds = dosemill_geometry::Aabb::new(lo - one, hi + one);
             let grid = grid.with_world(dosemill_geometry::World { medium: world, bounds }).map_err(|e| err("geometry", e.to_string()))?;
             let mut max_density = grid.max_density_by_material();
             max_density.resize(mats.tables.len(), 0.0);

@@ -244,6 +244,16 @@ impl Ctx<'_> {
             s.segment(&view, length_cm, self.history);
         }
     }
+    /// The start of a straight flight of `p` (next-event estimators along flights).
+    #[inline]
+    fn flight(&mut self, problem: &Problem, p: &Photon) {
+        if self.sites && !p.region.is_escaped() {
+            let view = p.view();
+            for s in self.scorers.iter_mut() {
+                s.flight(problem, &view, self.history);
+            }
+        }
+    }
     #[inline]
     fn count(&mut self, bin: usize, w: f64) {
         for s in self.scorers.iter_mut() {
@@ -302,6 +312,7 @@ impl Problem {
             ctx.deposit(p.region, p.pos, p.kev * p.weight);
             return;
         }
+        ctx.flight(self, &p);
         loop {
             if p.region.is_escaped() {
                 ctx.escape(&p);
@@ -366,6 +377,7 @@ impl Problem {
             ctx.deposit(p.region, p.pos, p.kev * p.weight);
             return;
         }
+        ctx.flight(self, &p);
         let grid = &*world.grid;
         let bounds = grid.bounds();
         let world_box = grid.world().bounds;
@@ -468,6 +480,7 @@ impl Problem {
                     ctx.deposit(p.region, p.pos, p.kev * p.weight);
                     return false;
                 }
+                ctx.flight(self, p);
                 true
             }
             Interaction::Coherent => {
@@ -475,6 +488,7 @@ impl Problem {
                 let cos_theta = table.sample(p.kev, rng);
                 p.dir = rotate(p.dir, cos_theta, rng.azimuth());
                 p.coherent = p.coherent.saturating_add(1);
+                ctx.flight(self, p);
                 true
             }
         }

@@ -352,7 +352,9 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                     t["anti_scatter_grid"] = value(it);
                 }
                 t["forced_detection"] = value(d.forced_detection);
-                t["forced_detection_outer_points"] = value(d.forced_detection_outer_points as i64);
+                t["forced_detection_face_points"] = value(d.forced_detection_face_points as i64);
+                t["forced_detection_from"] = value(d.forced_detection_from.name());
+                t["forced_detection_roulette_below"] = value(d.forced_detection_roulette_below);
                 t["forced_detection_coherent_directions"] = value(d.forced_detection_coherent_directions);
             }
         }

@@ -479,11 +479,40 @@ pub struct Detector {
     pub anti_scatter_grid: Option<AntiScatterGrid>,
     /// Score the expected contribution of every interaction (point detection) instead of crossings.
     pub forced_detection: bool,
-    /// Next-event points per interaction site over the face outside the central ROI (1–64).
-    pub forced_detection_outer_points: usize,
+    /// Next-event points per site over the whole face, besides the one in the central ROI (1–64).
+    pub forced_detection_face_points: usize,
+    /// Where the next-event points look from: one point of every flight's ray (expected
+    /// collisions) or the collisions the transport samples.
+    pub forced_detection_from: ForcedDetectionFrom,
+    /// Sites whose uncollided transmission to the face is below this level are played by
+    /// Russian roulette (0 = never; 0–1).
+    pub forced_detection_roulette_below: f64,
     /// Also draw a coherent-scatter direction from its own angular distribution at each site
     /// (combined with the solid-angle points by the balance heuristic).
     pub forced_detection_coherent_directions: bool,
+}
+
+/// Default transmission level below which forced-detection sites are played by Russian
+/// roulette (chosen on the P2 reference problem, README).
+pub const DEFAULT_FD_ROULETTE_BELOW: f64 = 0.5;
+
+/// Where forced detection looks from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ForcedDetectionFrom {
+    /// One point of each flight's whole ray, standing for the collision sampled on it.
+    Flights,
+    /// The collisions the transport samples.
+    Collisions,
+}
+
+impl ForcedDetectionFrom {
+    /// The deck spelling.
+    pub fn name(self) -> &'static str {
+        match self {
+            ForcedDetectionFrom::Flights => "flights",
+            ForcedDetectionFrom::Collisions => "collisions",
+        }
+    }
 }
 
 /// Detector signals.

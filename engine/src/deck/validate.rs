@@ -1468,7 +1468,9 @@ impl<'f> Walk<'f> {
                 "layer",
                 "anti_scatter_grid",
                 "forced_detection",
-                "forced_detection_outer_points",
+                "forced_detection_face_points",
+                "forced_detection_from",
+                "forced_detection_roulette_below",
                 "forced_detection_coherent_directions",
             ],
             _ => &[],
@@ -1661,11 +1663,19 @@ impl<'f> Walk<'f> {
         );
         let resp_bad = t.get("response").is_some_and(|e| !matches!(&e.val, Val::Str(s) if ["energy_fluence", "photon_fluence", "absorbed"].contains(&s.as_str())));
         let forced = t.bool_or(cx, "forced_detection", false);
-        let outer_points = match t.get("forced_detection_outer_points") {
-            Some(n) => uint_in(cx, n, &t.kp("forced_detection_outer_points"), 1, 64),
+        let face_points = match t.get("forced_detection_face_points") {
+            Some(n) => uint_in(cx, n, &t.kp("forced_detection_face_points"), 1, 64),
             None => Some(1),
         };
-        let coherent_directions = t.bool_or(cx, "forced_detection_coherent_directions", false);
+        let fd_from = match t.choice_or(cx, "forced_detection_from", &["flights", "collisions"], "flights") {
+            "collisions" => ForcedDetectionFrom::Collisions,
+            _ => ForcedDetectionFrom::Flights,
+        };
+        let roulette_below = match t.get("forced_detection_roulette_below") {
+            Some(_) => t.num_opt(cx, "forced_detection_roulette_below", Range::closed(0.0, 1.0, "")),
+            None => Some(DEFAULT_FD_ROULETTE_BELOW),
+        };
+        let coherent_directions = t.bool_or(cx, "forced_detection_coherent_directions", true);
         let mut pixels = None;
         if let (Some(s), Some(p)) = (size, pitch) {
             let n0 = (s[0] / p[0]).round();
@@ -1782,7 +1792,9 @@ impl<'f> Walk<'f> {
             response: response?,
             anti_scatter_grid: grid?,
             forced_detection: forced,
-            forced_detection_outer_points: outer_points? as usize,
+            forced_detection_face_points: face_points? as usize,
+            forced_detection_from: fd_from,
+            forced_detection_roulette_below: roulette_below?,
             forced_detection_coherent_directions: coherent_directions,
         })
     }

@@ -97,6 +97,7 @@ use super::grid::GridModel;
 use super::{InteractionSite, PhotonView, Tally};
 use sphrect::SphericalRect;
 use crate::physics::{fluorescence, klein_nishina, photoelectric, xs::MaterialXs, Interaction, PhysicsOptions};
+use crate::raytrace::MuAt;
 use crate::rng::{history_stream, Stream};
 use crate::source::{Emission, EnergySpectrum, Field, Source};
 use crate::transport::{Geometry, Problem};
@@ -298,11 +299,18 @@ pub struct DetectorSpec {
     pub roi_size_cm: [f64; 2],
     /// Forced-detection points per interaction site over the face outside the ROI (the ROI
     /// always gets one); 0 scores the ROI alone.
-    pub fd_outer_points: usize,
+    pub fd_face_points: usize,
     /// Also draw one coherent direction per site from the form-factor distribution, combined
     /// with the solid-angle points by the balance heuristic (bounds the Rayleigh forward-peak
     /// contributions; lowers the variance of the Rayleigh images, costs ≈ 20 % more per site).
     pub fd_coherent_sampling: bool,
+    /// Russian roulette of forced-detection sites: a site whose uncollided transmission T to
+    /// the nearest face point is below this level is scored with probability T / level and
+    /// weight × level / T; 0 scores every site.
+    pub fd_roulette_below: f64,
+    /// Next-event points from one point of every flight's whole ray (expected collisions)
+    /// instead of from the collisions the transport samples.
+    pub fd_along_flights: bool,
     /// Sub-pixel points per axis of the deterministic primary (≥ 1).
     pub primary_subpixels: usize,
 }
@@ -310,6 +318,9 @@ pub struct DetectorSpec {
 impl DetectorSpec {
     /// Default ROI side (cm): 5 cm, or the face if smaller.
     pub const DEFAULT_ROI_CM: f64 = 5.0;
+    /// Default transmission level below which forced-detection sites are played by Russian
+    /// roulette (chosen on P2, README).
+    pub const DEFAULT_FD_ROULETTE_BELOW: f64 = crate::deck::DEFAULT_FD_ROULETTE_BELOW;
 
     /// A spec with the engine's defaults for the ROI (5 × 5 cm), forced-detection points (one in
     /// the ROI and one over the rest of the face per site) and sub-pixels (2 × 2).
@@ -323,8 +334,10 @@ impl DetectorSpec {
             grid: None,
             forced_detection: false,
             roi_size_cm: [Self::DEFAULT_ROI_CM.min(size_cm[0]), Self::DEFAULT_ROI_CM.min(size_cm[1])],
-            fd_outer_points: 1,
-            fd_coherent_sampling: false,
+            fd_face_points: 1,
+            fd_coherent_sampling: true,
+            fd_roulette_below: Self::DEFAULT_FD_ROULETTE_BELOW,
+            fd_along_flights: true,
             primary_subpixels: 2,
         }
     }
@@ -771,21 +784,125 @@ impl DetectorScorer {
         Self::score(&self.setup, &mut self.tally, cat, iu, iv, value, raw, history);
     }
 
-    /// An interaction site: forced-detection contributions (only in forced-detection mode).
+    /// The start of a straight flight (a photon leaving the source, a fluorescence photon
+    /// emitted, a photon leaving a scattering): in forced-detection mode with expected
+    /// collisions along flights, the next-event contribution of one point of the flight's
+    /// whole ray, which stands for the collision the transport will sample on it (module docs).
+    #[inline]
+    pub fn flight(&mut self, problem: &Problem, ph: &PhotonView, history: u64) {
+        let s = &*self.setup;
+        if !s.spec.forced_detection || !s.spec.fd_along_flights {
+            return;
+        }
+        let mu = MuAt::new(&problem.materials, ph.kev);
+        let total = crate::raytrace::depth_to_exit(&problem.geometry, &mu, ph.pos, ph.dir);
+        if !(total > 0.0) {
+            return;
+        }
+        let mut rng = flight_stream(ph, history);
+        let mut mu_e = [0.0; MAX_MATERIALS];
+        for (k, v) in mu_e.iter_mut().enumerate().take(problem.materials.len()) {
+            *v = mu.mu_rho(k as u16);
+        }
+        // Optical depth t along the ray with density g(t) = β e^{−βt} / (1 − e^{−βT}) on [0, T],
+        // β = 1 − Ω·n (0 heading straight for the face, 2 straight away from it); the
+        // collision density there is e^{−t}, so the point stands for e^{−t} / g(t) collisions.
+        let beta = (1.0 - ph.dir.axis(s.n_axis) * s.facing).clamp(0.0, 2.0);
+        let u = rng.uniform();
+        let (t, collisions) = if beta * total < 1e-9 {
+            let t = u * total;
+            (t, total * (-t).exp())
+        } else {
+            let norm = -(-beta * total).exp_m1();
+            let t = (-(-u * norm).ln_1p() / beta).min(total);
+            (t, (-(1.0 - beta) * t).exp() * norm / beta)
+        };
+        let Some((pos, m)) = crate::raytrace::point_at_depth(&problem.geometry, &mu, ph.pos, ph.dir, t) else { return };
+        let at = PhotonView { pos, weight: ph.weight * collisions, ..*ph };
+        let Some(weight) = self.roulette(problem, &at, &mu_e, &mut rng) else { return };
+        // A photoelectric collision there (probability P^pe) emits fluorescence: drawn with
+        // the scorer's own stream.
+        let material = &problem.materials[m as usize];
+        let mut lines = fluorescence::Emitted::default();
+        if self.setup.options.fluorescence {
+            let nc = material.components.len().min(MAX_COMPONENTS);
+            let mut shares = [0.0; 3 * MAX_COMPONENTS];
+            material.channel_probabilities_at(material.lookup_ln(ph.kev.ln()), &mut shares[..3 * nc]);
+            let mut pick = rng.uniform();
+            for c in 0..nc {
+                pick -= shares[3 * c];
+                if pick < 0.0 {
+                    let element = material.components[c].element;
+                    let shell = photoelectric::sample_shell(ph.kev, element, &mut rng);
+                    lines = fluorescence::cascade(element, shell, &mut rng);
+                    break;
+                }
+            }
+        }
+        self.next_event(problem, &at, m as usize, weight, &mu_e, &lines, &mut rng, history);
+    }
+
+    /// Russian roulette of a forced-detection site (module docs): `None` when it is dropped,
+    /// else the weight it scores with.
+    #[inline]
+    fn roulette(&self, problem: &Problem, ph: &PhotonView, mu_e: &[f64; MAX_MATERIALS], rng: &mut Stream) -> Option<f64> {
+        let level = self.setup.spec.fd_roulette_below;
+        if level <= 0.0 {
+            return Some(ph.weight);
+        }
+        let q = (Self::transmission_to_face(&self.setup, problem, ph, mu_e) / level).min(1.0);
+        if q <= 0.0 || rng.uniform() >= q {
+            return None;
+        }
+        Some(ph.weight / q)
+    }
+
+    /// An interaction site: forced-detection contributions (only in forced-detection mode
+    /// with collision sites).
     #[inline]
     pub fn interaction(&mut self, problem: &Problem, site: &InteractionSite, history: u64) {
-        if !self.setup.spec.forced_detection {
+        if !self.setup.spec.forced_detection || self.setup.spec.fd_along_flights {
             return;
         }
         let ph = &site.photon;
         let mut rng = site_stream(ph, history);
+        let mut mu_e = [0.0; MAX_MATERIALS];
+        mu_all(&problem.materials, ph.kev, &mut mu_e);
+        let Some(weight) = self.roulette(problem, ph, &mu_e, &mut rng) else { return };
         // Fluorescence lines of a photoelectric site, sampled with the scorer's own stream.
         let mut lines = fluorescence::Emitted::default();
         if site.kind == Interaction::Photoelectric && self.setup.options.fluorescence {
             let shell = photoelectric::sample_shell(ph.kev, site.element, &mut rng);
             lines = fluorescence::cascade(site.element, shell, &mut rng);
         }
-        self.next_event(problem, ph, site.material as usize, ph.weight, &lines, &mut rng, history);
+        self.next_event(problem, ph, site.material as usize, weight, &mu_e, &lines, &mut rng, history);
+    }
+
+    /// Uncollided transmission e^{−τ} at the photon's energy (`mu_e`: μ/ρ of every material
+    /// there) from the photon to the point of the face nearest to it (its foot point on the
+    /// plane, clamped to the face); 0 behind the face.
+    #[inline]
+    fn transmission_to_face(s: &DetectorSetup, problem: &Problem, ph: &PhotonView, mu_e: &[f64; MAX_MATERIALS]) -> f64 {
+        let h = (s.plane_cm - ph.pos.axis(s.n_axis)) * s.facing;
+        if h <= 0.0 {
+            return 0.0;
+        }
+        let (hu, hv) = (0.5 * s.spec.size_cm[0], 0.5 * s.spec.size_cm[1]);
+        let su = ph.pos.axis(s.u_axis) - s.center_u;
+        let sv = ph.pos.axis(s.v_axis) - s.center_v;
+        // Offsets of the nearest face point from the foot point (0 when the foot is on the face).
+        let x = su.clamp(-hu, hu) - su;
+        let y = sv.clamp(-hv, hv) - sv;
+        let r = (x * x + y * y + h * h).sqrt();
+        let dir = Vec3::new(0.0, 0.0, 0.0).with_axis(s.u_axis, x / r).with_axis(s.v_axis, y / r).with_axis(s.n_axis, s.facing * h / r);
+        let nmat = problem.materials.len();
+        let mut mt = [0.0; MAX_MATERIALS];
+        let tau = if mass_thickness(&problem.geometry, nmat, ph.pos, dir, r, &mut mt) {
+            (0..nmat).map(|k| mu_e[k] * mt[k]).sum()
+        } else {
+            crate::raytrace::optical_depth(&problem.geometry, &problem.materials, ph.pos, dir, r, ph.kev)
+        };
+        (-tau).exp()
     }
 
     /// Next-event contributions of an interaction of `ph` (weight `weight`) at its position in
@@ -793,7 +910,7 @@ impl DetectorScorer {
     /// uniform in solid angle over the rest of the face (module docs).
     #[inline]
     #[allow(clippy::too_many_arguments)]
-    fn next_event(&mut self, problem: &Problem, ph: &PhotonView, m: usize, weight: f64, lines: &fluorescence::Emitted, rng: &mut Stream, history: u64) {
+    fn next_event(&mut self, problem: &Problem, ph: &PhotonView, m: usize, weight: f64, mu_e: &[f64; MAX_MATERIALS], lines: &fluorescence::Emitted, rng: &mut Stream, history: u64) {
         let s = &*self.setup;
         let tally = &mut self.tally;
         // Distance to the plane, on the side the face looks at.
@@ -825,64 +942,34 @@ impl DetectorScorer {
                 a_coh[c] = shares[3 * c + 2] * coh.at_ln(ln_kev);
             }
         }
-        let mut mu_e = [0.0; MAX_MATERIALS];
-        mu_all(&problem.materials, kev, &mut mu_e);
         let su = ph.pos.axis(s.u_axis) - s.center_u;
         let sv = ph.pos.axis(s.v_axis) - s.center_v;
         let p_coh: f64 = if s.options.rayleigh && s.spec.fd_coherent_sampling { (0..elems.len()).map(|c| shares[3 * c + 2]).sum() } else { 0.0 };
-        let nd = NextEvent { s, problem, ph, h, su, sv, cats, elems, a_inc: &a_inc, a_coh: &a_coh, mu_e: &mu_e, lines, weight, p_coh };
-        // The ROI: one point, weight Ω_ROI.
+        let nd = NextEvent { s, problem, ph, h, su, sv, cats, elems, a_inc: &a_inc, a_coh: &a_coh, mu_e, lines, weight, p_coh };
+        // Two solid-angle techniques, combined by the balance heuristic (module docs): one
+        // point uniform in solid angle over the ROI (density 1/Ω_ROI there) and `n_face`
+        // uniform over the whole face (n_face/Ω_face); a point x of either scores
+        // f(x) / d(x), d(x) = [x in the ROI]/Ω_ROI + n_face/Ω_face.
         let [r_u0, r_u1, r_v0, r_v1] = s.roi_edges_cm;
         let roi = SphericalRect::new(r_u0 - su, r_u1 - su, r_v0 - sv, r_v1 - sv, h);
-        if roi.solid_angle > 0.0 {
-            let (x, y) = roi.sample(rng.uniform(), rng.uniform());
-            nd.point(tally, x, y, 1.0 / roi.solid_angle, true, history);
-        }
-        // The rest of the face: four rectangles around the ROI (below, above, left, right), one
-        // chosen with probability P_i ∝ its solid angle, a point uniform in solid angle in it;
-        // weight Ω_i / P_i (= Ω_outer) per point, divided by the number of points.
-        let n_out = s.spec.fd_outer_points;
+        let n_face = s.spec.fd_face_points;
         let (hu, hv) = (0.5 * s.spec.size_cm[0], 0.5 * s.spec.size_cm[1]);
-        let us = [-hu - su, r_u0 - su, r_u1 - su, hu - su];
-        let vs = [-hv - sv, r_v0 - sv, r_v1 - sv, hv - sv];
-        // (i0, i1, j0, j1) of the four pieces in the us × vs grid.
-        const PIECES: [(usize, usize, usize, usize); 4] = [(0, 3, 0, 1), (0, 3, 2, 3), (0, 1, 1, 2), (2, 3, 1, 2)];
-        let mut omega = [0.0; 4];
-        let mut omega_sum = 0.0;
-        if n_out > 0 {
-            let mut f = [[0.0; 4]; 4];
-            for (i, &u) in us.iter().enumerate() {
-                for (j, &v) in vs.iter().enumerate() {
-                    f[i][j] = sphrect::corner(u, v, h);
-                }
-            }
-            for (k, &(i0, i1, j0, j1)) in PIECES.iter().enumerate() {
-                if us[i1] > us[i0] && vs[j1] > vs[j0] {
-                    omega[k] = (f[i1][j1] - f[i0][j1] - f[i1][j0] + f[i0][j0]).max(0.0);
-                }
-                omega_sum += omega[k];
-            }
+        let face = SphericalRect::new(-hu - su, hu - su, -hv - sv, hv - sv, h);
+        let d_roi = if roi.solid_angle > 0.0 { 1.0 / roi.solid_angle } else { 0.0 };
+        let d_face = if face.solid_angle > 0.0 { n_face as f64 / face.solid_angle } else { 0.0 };
+        let density = |x: f64, y: f64| {
+            let (du, dv) = (su + x, sv + y);
+            let in_roi = du >= r_u0 && du < r_u1 && dv >= r_v0 && dv < r_v1;
+            if in_roi { d_roi + d_face } else { d_face }
+        };
+        if d_roi > 0.0 {
+            let (x, y) = roi.sample(rng.uniform(), rng.uniform());
+            nd.point(tally, x, y, d_roi + d_face, true, history);
         }
-        if omega_sum > 0.0 {
-            for _ in 0..n_out {
-                let pick = rng.uniform() * omega_sum;
-                let mut k = 0;
-                let mut cum = omega[0];
-                while k < 3 && (pick >= cum || omega[k] == 0.0) {
-                    k += 1;
-                    cum += omega[k];
-                }
-                if omega[k] == 0.0 {
-                    continue;
-                }
-                let (i0, i1, j0, j1) = PIECES[k];
-                let r = SphericalRect::new(us[i0], us[i1], vs[j0], vs[j1], h);
-                if r.solid_angle <= 0.0 {
-                    continue;
-                }
-                let (x, y) = r.sample(rng.uniform(), rng.uniform());
-                // Density of this technique: n_out · P_k / Ω_k (= n_out / Ω_outer).
-                nd.point(tally, x, y, n_out as f64 * (omega[k] / omega_sum) / r.solid_angle, true, history);
+        if d_face > 0.0 {
+            for _ in 0..n_face {
+                let (x, y) = face.sample(rng.uniform(), rng.uniform());
+                nd.point(tally, x, y, density(x, y), true, history);
             }
         }
         // Coherent scattering, second technique: a direction drawn from the coherent angular
@@ -907,13 +994,7 @@ impl DetectorScorer {
             let t = h / dn;
             let (x, y) = (dir.axis(s.u_axis) * t, dir.axis(s.v_axis) * t);
             let (du, dv) = (su + x, sv + y);
-            let d_sa = if du >= r_u0 && du < r_u1 && dv >= r_v0 && dv < r_v1 {
-                if roi.solid_angle > 0.0 { 1.0 / roi.solid_angle } else { 0.0 }
-            } else if omega_sum > 0.0 {
-                n_out as f64 / omega_sum
-            } else {
-                0.0
-            };
+            let d_sa = if du.abs() <= hu && dv.abs() <= hv { density(x, y) } else { 0.0 };
             nd.point(tally, x, y, d_sa, false, history);
         }
     }
@@ -1028,6 +1109,17 @@ impl NextEvent<'_> {
             }
         }
     }
+}
+
+/// The scorer's random stream at the start of a flight: a pure function of the history and the
+/// flight (position, direction and energy bits), independent of the transport's stream.
+#[inline]
+fn flight_stream(p: &PhotonView, history: u64) -> Stream {
+    let mut h = 0xBB67_AE85_84CA_A73Bu64;
+    for w in [p.pos.x.to_bits(), p.pos.y.to_bits(), p.pos.z.to_bits(), p.dir.x.to_bits(), p.dir.y.to_bits(), p.kev.to_bits()] {
+        h = (h ^ w).wrapping_mul(0x9E37_79B9_7F4A_7C15).rotate_left(29);
+    }
+    history_stream(h, history)
 }
 
 /// The scorer's random stream at an interaction site: a pure function of the history and the
@@ -1346,8 +1438,10 @@ pub fn from_deck(
     let c = det.position_cm;
     let mut spec = DetectorSpec::new(Vec3::new(c[0], c[1], c[2]), axis, det.size_cm, [det.pixels[0] as usize, det.pixels[1] as usize], response);
     spec.forced_detection = det.forced_detection;
-    spec.fd_outer_points = det.forced_detection_outer_points;
+    spec.fd_face_points = det.forced_detection_face_points;
     spec.fd_coherent_sampling = det.forced_detection_coherent_directions;
+    spec.fd_roulette_below = det.forced_detection_roulette_below;
+    spec.fd_along_flights = det.forced_detection_from == deck::ForcedDetectionFrom::Flights;
     if let Some(g) = &det.anti_scatter_grid {
         let table = |name: &str, key: &str| -> Result<MaterialXs, String> {
             let m = resolve(name, key)?;

@@ -218,6 +218,14 @@ impl Scorer {
         }
     }
 
+    /// The start of a straight flight of `photon` (next-event estimators along flights).
+    #[inline]
+    pub fn flight(&mut self, problem: &crate::transport::Problem, photon: &PhotonView, history: u64) {
+        if let Scorer::Detector(d) = self {
+            d.flight(problem, photon, history);
+        }
+    }
+
     /// True for scorers that need every flight segment ([`Scorer::segment`]).
     pub fn wants_segments(&self) -> bool {
         match self {

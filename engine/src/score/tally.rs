@@ -215,7 +215,9 @@ impl Pending {
 
 #[derive(Debug, Clone)]
 enum Store {
-    Dense { sum: Vec<u128>, sum2: Vec<u128>, current: Vec<f64>, last: Vec<u64> },
+    /// Per bin: the sums [Σx, Σx²] (2⁻⁵⁰ fixed point) and, kept apart so that a score touches
+    /// one cache line, the open history's total and that history's number.
+    Dense { sums: Vec<[u128; 2]>, open: Vec<Open> },
     Shared { sums: Arc<SharedSums>, pending: Pending },
 }
 
@@ -234,7 +236,7 @@ impl PartialEq for Tally {
 impl Tally {
     /// A zeroed dense tally of `bins` bins.
     pub fn new(bins: usize) -> Self {
-        Self { store: Store::Dense { sum: vec![0; bins], sum2: vec![0; bins], current: vec![0.0; bins], last: vec![NO_HISTORY; bins] } }
+        Self { store: Store::Dense { sums: vec![[0; 2]; bins], open: vec![Open::EMPTY; bins] } }
     }
 
     /// A zeroed shared tally of `bins` bins (one copy of the sums for all workers).
@@ -257,7 +259,7 @@ impl Tally {
     /// A zeroed tally of the same shape and store kind (a shared store gets new sums).
     pub fn zeroed_like(&self) -> Tally {
         match &self.store {
-            Store::Dense { sum, .. } => Tally::new(sum.len()),
+            Store::Dense { sums, .. } => Tally::new(sums.len()),
             Store::Shared { sums, .. } => Tally::shared(sums.bins),
         }
     }
@@ -267,7 +269,7 @@ impl Tally {
     /// a view of the same sums is already in.
     pub fn worker_view(&self) -> Tally {
         match &self.store {
-            Store::Dense { sum, .. } => Tally::new(sum.len()),
+            Store::Dense { sums, .. } => Tally::new(sums.len()),
             Store::Shared { sums, .. } => Tally { store: Store::Shared { sums: Arc::clone(sums), pending: Pending::new() } },
         }
     }
@@ -275,7 +277,7 @@ impl Tally {
     /// Number of bins.
     pub fn len(&self) -> usize {
         match &self.store {
-            Store::Dense { sum, .. } => sum.len(),
+            Store::Dense { sums, .. } => sums.len(),
             Store::Shared { sums, .. } => sums.bins,
         }
     }
@@ -289,12 +291,13 @@ impl Tally {
     #[inline(always)]
     pub fn add(&mut self, bin: usize, value: f64, history: u64) {
         match &mut self.store {
-            Store::Dense { sum, sum2, current, last } => {
-                if last[bin] != history {
-                    fold_dense(bin, sum, sum2, current);
-                    last[bin] = history;
+            Store::Dense { sums, open } => {
+                let o = &mut open[bin];
+                if o.last != history {
+                    fold_dense(&mut sums[bin], o);
+                    o.last = history;
                 }
-                current[bin] += value;
+                o.current += value;
             }
             Store::Shared { sums, pending } => {
                 if pending.history != history {
@@ -310,10 +313,10 @@ impl Tally {
     /// Folds every pending history total into the sums.
     pub fn flush(&mut self) {
         match &mut self.store {
-            Store::Dense { sum, sum2, current, last } => {
-                for bin in 0..sum.len() {
-                    fold_dense(bin, sum, sum2, current);
-                    last[bin] = NO_HISTORY;
+            Store::Dense { sums, open } => {
+                for (s, o) in sums.iter_mut().zip(open.iter_mut()) {
+                    fold_dense(s, o);
+                    o.last = NO_HISTORY;
                 }
             }
             Store::Shared { sums, pending } => {
@@ -328,10 +331,10 @@ impl Tally {
     pub fn merge(&mut self, other: &Tally) {
         assert_eq!(self.len(), other.len(), "merging tallies of different shapes");
         match (&mut self.store, &other.store) {
-            (Store::Dense { sum, sum2, .. }, Store::Dense { sum: s, sum2: s2, .. }) => {
-                for i in 0..sum.len() {
-                    sum[i] += s[i];
-                    sum2[i] += s2[i];
+            (Store::Dense { sums, .. }, Store::Dense { sums: o, .. }) => {
+                for (a, b) in sums.iter_mut().zip(o) {
+                    a[0] += b[0];
+                    a[1] += b[1];
                 }
             }
             (Store::Shared { sums, .. }, Store::Shared { sums: o, .. }) => {
@@ -362,10 +365,10 @@ impl Tally {
         assert_eq!(a.len(), b.len());
         assert!(start + a.len() <= self.len(), "raw sums past the last bin");
         match &mut self.store {
-            Store::Dense { sum, sum2, .. } => {
+            Store::Dense { sums, .. } => {
                 for k in 0..a.len() {
-                    sum[start + k] += a[k];
-                    sum2[start + k] += b[k];
+                    sums[start + k][0] += a[k];
+                    sums[start + k][1] += b[k];
                 }
             }
             Store::Shared { sums, .. } => {
@@ -382,7 +385,7 @@ impl Tally {
     #[inline]
     pub fn raw_bin(&self, i: usize) -> (u128, u128) {
         match &self.store {
-            Store::Dense { sum, sum2, .. } => (sum[i], sum2[i]),
+            Store::Dense { sums, .. } => (sums[i][0], sums[i][1]),
             Store::Shared { sums, .. } => {
                 let up = |v: u64, shift: i32| if v == u64::MAX { u128::MAX } else { (v as u128) << shift };
                 let (a, b) = sums.words(i);
@@ -391,24 +394,18 @@ impl Tally {
         }
     }
 
-    /// The raw fixed-point sums in the 2⁻⁵⁰ format (for checkpoints and shard files): borrowed
-    /// from a dense store, converted (exactly) from a shared one. A saturated shared word comes
-    /// out as u128::MAX.
+    /// The raw fixed-point sums in the 2⁻⁵⁰ format (for checkpoints and shard files), copied
+    /// (exactly converted from a shared store). A saturated shared word comes out as u128::MAX.
     pub fn raw(&self) -> (Cow<'_, [u128]>, Cow<'_, [u128]>) {
-        match &self.store {
-            Store::Dense { sum, sum2, .. } => (Cow::Borrowed(sum.as_slice()), Cow::Borrowed(sum2.as_slice())),
-            Store::Shared { sums, .. } => {
-                let (a, b): (Vec<u128>, Vec<u128>) = (0..sums.bins).map(|i| self.raw_bin(i)).unzip();
-                (Cow::Owned(a), Cow::Owned(b))
-            }
-        }
+        let (a, b): (Vec<u128>, Vec<u128>) = (0..self.len()).map(|i| self.raw_bin(i)).unzip();
+        (Cow::Owned(a), Cow::Owned(b))
     }
 
     /// A flushed dense tally from raw fixed-point sums.
     pub fn from_raw(sum: Vec<u128>, sum2: Vec<u128>) -> Self {
         let n = sum.len();
         assert_eq!(n, sum2.len());
-        Self { store: Store::Dense { sum, sum2, current: vec![0.0; n], last: vec![NO_HISTORY; n] } }
+        Self { store: Store::Dense { sums: sum.into_iter().zip(sum2).map(|(a, b)| [a, b]).collect(), open: vec![Open::EMPTY; n] } }
     }
 
     /// Replaces the sums by raw ones (format of [`Tally::raw`]), keeping the store kind.
@@ -430,7 +427,7 @@ impl Tally {
     /// Mean per history and its standard error for each bin, over `histories` histories.
     pub fn mean_and_sigma(&self, histories: u64) -> (Vec<f64>, Vec<f64>) {
         match &self.store {
-            Store::Dense { sum, sum2, .. } => sum.iter().zip(sum2).map(|(a, b)| bin_stats(from_fixed(*a), from_fixed(*b), histories)).unzip(),
+            Store::Dense { sums, .. } => sums.iter().map(|[a, b]| bin_stats(from_fixed(*a), from_fixed(*b), histories)).unzip(),
             Store::Shared { sums, .. } => (0..sums.bins).map(|i| shared_bin_stats(sums, i, histories)).unzip(),
         }
     }
@@ -495,14 +492,25 @@ impl BinStats {
     }
 }
 
-/// Folds the open history's total of dense bin `bin` into its sums.
+/// The open history of one dense bin: its running total and the history's number.
+#[derive(Debug, Clone, Copy)]
+struct Open {
+    current: f64,
+    last: u64,
+}
+
+impl Open {
+    const EMPTY: Open = Open { current: 0.0, last: NO_HISTORY };
+}
+
+/// Folds the open history's total of a dense bin into its sums.
 #[inline(always)]
-fn fold_dense(bin: usize, sum: &mut [u128], sum2: &mut [u128], current: &mut [f64]) {
-    let c = current[bin];
+fn fold_dense(sums: &mut [u128; 2], o: &mut Open) {
+    let c = o.current;
     if c != 0.0 {
-        sum[bin] += to_fixed(c);
-        sum2[bin] += to_fixed(c * c);
-        current[bin] = 0.0;
+        sums[0] += to_fixed(c);
+        sums[1] += to_fixed(c * c);
+        o.current = 0.0;
     }
 }
 

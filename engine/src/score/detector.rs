@@ -61,23 +61,38 @@
 //! w · Ω_rect · Σ_c[…](Ω̂) / A_pixel   into the pixel holding x(Ω̂),
 //! ```
 //!
-//! bounded for sites arbitrarily close to the face (no 1/r² factor). Per site: one point over
-//! the ROI rectangle (weight Ω_ROI) and `fd_outer_points` points (default 1) over the rest of
-//! the face, the four rectangles around the ROI (full-width bands below and above, pieces left
-//! and right): one piece i is chosen with probability P_i = Ω_i / Σ_j Ω_j (closed-form corner
-//! sum [`sphrect::solid_angle`]) and a point sampled uniformly in solid angle in it; the weight
-//! Ω_i^{sampler} / P_i (= Ω_outer up to rounding) divided by the number of points. The overall
-//! density is uniform in solid angle over the face outside the ROI, so every pixel's estimate is
-//! unbiased. With `fd_coherent_sampling` a coherent direction is also drawn from the coherent
-//! distribution itself, and the coherent part of every sample of both techniques is weighted by
-//! the balance heuristic f / (d_SA(Ω) + p_coh(Ω)) (Veach & Guibas, "Optimally combining sampling
-//! techniques for Monte Carlo rendering", SIGGRAPH 1995), d_SA the density (× points) of the
-//! solid-angle technique covering Ω, p_coh the mixture density sampled: unbiased, and the
-//! forward-peak contributions are bounded. The analog photon continues unchanged; in forced-detection mode the analog
+//! bounded for sites arbitrarily close to the face (no 1/r² factor). Per site: one point
+//! uniform in solid angle over the ROI rectangle (density 1/Ω_ROI) and `fd_face_points` points
+//! (default 1) uniform in solid angle over the whole face (n/Ω_face); every point is weighted by
+//! the balance heuristic (Veach & Guibas, "Optimally combining sampling techniques for Monte
+//! Carlo rendering", SIGGRAPH 1995) with d(Ω) = [in the ROI]/Ω_ROI + n/Ω_face, so every pixel's
+//! estimate is unbiased. With `fd_coherent_sampling` (default) a coherent direction is also drawn
+//! from the coherent distribution itself, and the coherent part of every sample is weighted by
+//! f / (d(Ω) + p_coh(Ω)), p_coh the mixture density sampled: unbiased, and the forward-peak
+//! contributions are bounded.
+//!
+//! # Sites: expected collisions along flights
+//!
+//! With `fd_along_flights` (default) the sites are not the transport's collisions: at the start
+//! of every straight flight (source, fluorescence emission, after a scattering) one point of
+//! the flight's whole ray is taken at optical depth t ∈ [0, T] (T to the edge of the world) with
+//! density g(t) = β e^{−βt}/(1 − e^{−βT}), β = 1 − Ω·n, and scored as a site of weight
+//! w e^{−t}/g(t): the collision density along the ray is e^{−t} dt, so this has the expectation
+//! of scoring the collision the transport samples on the ray. Otherwise the transport's
+//! collisions are the sites.
+//!
+//! # Russian roulette
+//!
+//! A site whose uncollided transmission T_f at its energy to the nearest face point is below
+//! `fd_roulette_below` is kept with probability T_f / level and then scores with weight ×
+//! level / T_f (unbiased).
+//!
+//! The analog photon continues unchanged; in forced-detection mode the analog
 //! crossings of scattered photons are not added to the images (they would count the same photons
 //! twice) but are kept in the `analog_scatter_*` summary bins for comparison.
 //!
-//! The scorer's stream at a site is a pure function of (history, site position and energy), so a
+//! The scorer's stream at a site or flight is a pure function of (history, position, direction
+//! and energy), so a
 //! history still replays alone and the result does not depend on the thread count.
 //!
 //! # Deterministic primary
@@ -91,6 +106,7 @@
 //! followed.
 
 pub mod p2;
+mod scatter_table;
 pub mod sphrect;
 
 use super::grid::GridModel;
@@ -350,6 +366,8 @@ struct ElementNorm {
     element: &'static Element,
     inv_inc: LnTable,
     inv_coh: Option<LnTable>,
+    /// S and F² for the points (interpolated in √x).
+    table: scatter_table::ScatterTable,
 }
 
 /// dσ^inc/dΩ per atom (cm²/sr) as sampled.
@@ -395,7 +413,8 @@ impl ElementNorm {
         let bound = options.bound_compton;
         let inv_inc = LnTable::build(e0, e1, n, |e| 1.0 / integrate_sphere(|c| incoherent_dsigma(klein_nishina::dsigma_domega_cm2(e, c), e, c, element, bound)));
         let inv_coh = options.rayleigh.then(|| LnTable::build(e0, e1, n, |e| 1.0 / integrate_sphere(|c| coherent_dsigma(e, c, element))));
-        Self { element, inv_inc, inv_coh }
+        let table = scatter_table::ScatterTable::new(element, e1 / HC_KEV_ANGSTROM);
+        Self { element, inv_inc, inv_coh, table }
     }
 }
 
@@ -1063,13 +1082,20 @@ impl NextEvent<'_> {
         let kev = ph.kev;
         let w_area = self.weight / s.pixel_area_cm2;
         let geo = if all { w_area / d_sa } else { 0.0 };
-        // Incoherent.
+        // S(x) and F(x)² of every element at this angle (the same x = sin(θ/2)/λ for both).
+        let x = crate::physics::compton::momentum_transfer(kev, cos_s);
+        let mut sf = [(0.0, 0.0); MAX_COMPONENTS];
+        for (c, &ei) in self.elems.iter().enumerate() {
+            sf[c] = s.norms[ei].table.at(x);
+        }
+        // Incoherent: dσ/dΩ = KN × S (bound) or KN × Z (free electrons).
         let e_inc = kev / (1.0 + kev / ELECTRON_REST_KEV * (1.0 - cos_s));
         if all && e_inc >= s.options.cutoff_kev {
             let kn = klein_nishina::dsigma_domega_cm2(kev, cos_s);
             let mut p = 0.0;
             for (c, &ei) in self.elems.iter().enumerate() {
-                p += self.a_inc[c] * incoherent_dsigma(kn, kev, cos_s, s.norms[ei].element, s.options.bound_compton);
+                let per_electron = if s.options.bound_compton { sf[c].0 } else { s.norms[ei].element.z as f64 };
+                p += self.a_inc[c] * kn * per_electron;
             }
             if p > 0.0 {
                 let v = geo * p * (-tau_at(e_inc, None)).exp() * s.spec.response.value(e_inc, cos_det);
@@ -1077,11 +1103,12 @@ impl NextEvent<'_> {
                 val[self.cats.0] += v * DetectorScorer::grid_at(s, e_inc, du, dir);
             }
         }
-        // Coherent.
+        // Coherent: dσ/dΩ = (r_e²/2)(1 + cos²θ) F².
         if s.options.rayleigh {
+            let thomson = 0.5 * CLASSICAL_ELECTRON_RADIUS_CM * CLASSICAL_ELECTRON_RADIUS_CM * (1.0 + cos_s * cos_s);
             let mut p = 0.0;
-            for (c, &ei) in self.elems.iter().enumerate() {
-                p += self.a_coh[c] * coherent_dsigma(kev, cos_s, s.norms[ei].element);
+            for c in 0..self.elems.len() {
+                p += self.a_coh[c] * thomson * sf[c].1;
             }
             if p > 0.0 {
                 // Balance heuristic: f / (d_sa + p_coh(Ω)), p_coh(Ω) = p / P^coh the sampled

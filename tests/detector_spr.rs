@@ -72,3 +72,56 @@ fn spr_rises_with_thickness_and_field_and_is_common_practice_for_20_cm() {
     assert!((3.0..=7.0).contains(&t20), "central SPR for 20 cm water, 30 cm field: {t20}");
     assert!((sf20 - t20 / (1.0 + t20)).abs() < 1e-12 && sf20 > 0.7);
 }
+
+/// The region of interest is set from the deck (`roi_size_cm`): its mean scatter is the mean of
+/// the scatter image over the pixels whose centres lie in the centred rectangle (here 3 × 1
+/// pixels of an 11 × 11 face), not over the default 5 × 5 cm.
+#[test]
+fn roi_size_from_the_deck() {
+    use dosemill_engine::score::detector::{summary, CATEGORIES};
+    let deck = |roi: &str| {
+        format!(
+            r#"
+[run]
+histories = 1
+[source]
+kind = "point"
+position_cm = [0, 0, -100]
+field = {{ shape = "rectangle", width_cm = 10, height_cm = 10 }}
+field_distance_cm = 100
+energy_kev = 60
+[geometry]
+kind = "slabs"
+world = "vacuum"
+start_z_cm = -12
+[[geometry.layer]]
+material = "water"
+thickness_cm = 10
+[[score]]
+name = "image"
+kind = "detector"
+position_cm = [0, 0, 0]
+size_cm = [11, 11]
+pixel_pitch_cm = 1
+{roi}
+"#
+        )
+    };
+    let scatter = CATEGORIES.iter().position(|c| *c == "scatter").unwrap();
+    for (roi, cols, rows) in [("roi_size_cm = [3, 1]", 3usize, 1usize), ("", 5, 5)] {
+        let d = dosemill_engine::deck::load_str(&deck(roi), Path::new("runs/detector_test.toml")).unwrap_or_else(|e| panic!("{e:?}"));
+        let p = dosemill_engine::setup::build(&d.resolved).unwrap_or_else(|e| panic!("{e}")).0;
+        let r = run(&p, &RunSettings { histories: 40_000, seed: 4, chunk_histories: 2_000, threads: 2, progress: false });
+        let Scorer::Detector(det) = &r.scorers[0] else { panic!() };
+        let (img, _) = det.image(scatter, r.histories);
+        let mut sum = 0.0;
+        for iv in (5 - rows / 2)..=(5 + rows / 2) {
+            for iu in (5 - cols / 2)..=(5 + cols / 2) {
+                sum += img[iv * 11 + iu];
+            }
+        }
+        let want = sum / (cols * rows) as f64;
+        let got = det.summary(r.histories).mean[summary::ROI_SCATTER];
+        assert!(want > 0.0 && (got / want - 1.0).abs() < 1e-9, "`{roi}`: ROI mean {got} vs pixel mean {want}");
+    }
+}

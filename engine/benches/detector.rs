@@ -13,13 +13,13 @@ fn pitch() -> f64 {
 
 fn bench(c: &mut Criterion) {
     let pitch = pitch();
-    let (a, f, gain) = p2::efficiency_gain(pitch, 200_000, 10_000, 1);
+    let (a, f, gain) = p2::efficiency_gain(pitch, p2::REFERENCE_ROI_CM, 200_000, 10_000, 1);
     eprintln!(
         "P2 ({pitch} cm pixels): analog ROI scatter {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); forced {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); gain {gain:.1}; SPR {:.2}",
         a.roi_scatter, a.roi_scatter_sigma, a.wall_time_s, a.efficiency_per_s, f.roi_scatter, f.roi_scatter_sigma, f.wall_time_s, f.efficiency_per_s, f.spr_roi
     );
     for forced in [false, true] {
-        let p = p2::problem(pitch, forced);
+        let p = p2::problem(pitch, p2::REFERENCE_ROI_CM, forced);
         let n = if forced { 500 } else { 10_000 };
         c.bench_function(&format!("p2_{}_{n}_histories", if forced { "forced" } else { "analog" }), |b| {
             b.iter(|| run(&p, &RunSettings { histories: n, seed: 2, chunk_histories: n, threads: 1, progress: false }))

@@ -26,6 +26,9 @@ pub struct Args {
     /// P3 only: phantom voxels per scoring voxel along each axis (1 = dose in every phantom voxel).
     #[arg(long, default_value_t = 4)]
     pub scoring_block: usize,
+    /// P2 only: side of the central region of interest (cm; the reference figure uses 5).
+    #[arg(long, default_value_t = crate::score::detector::p2::REFERENCE_ROI_CM)]
+    pub roi_cm: f64,
 }
 
 /// Peak resident memory of this process so far (bytes), from /proc/self/status (Linux).
@@ -61,8 +64,11 @@ pub fn run_bench(args: Args) -> anyhow::Result<i32> {
     } else if args.problem == "p2" {
         // A forced-detection history costs several analog ones: run it on a tenth of the histories.
         let forced = (args.histories / 10).max(1000);
-        let (a, f, gain) = crate::score::detector::p2::efficiency_gain(0.2, args.histories, forced, threads);
-        println!("P2: 80 kV tube, 30 × 30 cm field at 100 cm, 20 cm water, 40 × 40 cm detector at 2 mm pitch");
+        let (a, f, gain) = crate::score::detector::p2::efficiency_gain(0.2, args.roi_cm, args.histories, forced, threads);
+        if !(args.roi_cm > 0.0 && args.roi_cm <= 40.0) {
+            anyhow::bail!("--roi-cm {}: the ROI side must be above 0 and at most the 40 cm face", args.roi_cm);
+        }
+        println!("P2: 80 kV tube, 30 × 30 cm field at 100 cm, 20 cm water, 40 × 40 cm detector at 2 mm pitch, central ROI {} × {} cm", args.roi_cm, args.roi_cm);
         println!("  threads               {threads}");
         for (name, e) in [("analog", &a), ("forced detection", &f)] {
             println!(

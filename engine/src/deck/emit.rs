@@ -351,6 +351,9 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                     }
                     t["anti_scatter_grid"] = value(it);
                 }
+                if let Some(r) = d.roi_size_cm {
+                    t["roi_size_cm"] = value(arr_f(&r));
+                }
                 t["forced_detection"] = value(d.forced_detection);
                 t["forced_detection_face_points"] = value(d.forced_detection_face_points as i64);
                 t["forced_detection_from"] = value(d.forced_detection_from.name());

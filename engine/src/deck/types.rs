@@ -477,6 +477,8 @@ pub struct Detector {
     pub response: Response,
     /// Anti-scatter grid in front of the face.
     pub anti_scatter_grid: Option<AntiScatterGrid>,
+    /// Size [u, v] of the central region of interest (cm); `None`: 5 cm, or the face if smaller.
+    pub roi_size_cm: Option<[f64; 2]>,
     /// Score the expected contribution of every interaction (point detection) instead of crossings.
     pub forced_detection: bool,
     /// Next-event points per site over the whole face, besides the one in the central ROI (1–64).

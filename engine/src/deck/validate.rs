@@ -1468,6 +1468,7 @@ impl<'f> Walk<'f> {
                 "layer",
                 "anti_scatter_grid",
                 "forced_detection",
+                "roi_size_cm",
                 "forced_detection_face_points",
                 "forced_detection_from",
                 "forced_detection_roulette_below",
@@ -1663,6 +1664,24 @@ impl<'f> Walk<'f> {
         );
         let resp_bad = t.get("response").is_some_and(|e| !matches!(&e.val, Val::Str(s) if ["energy_fluence", "photon_fluence", "absorbed"].contains(&s.as_str())));
         let forced = t.bool_or(cx, "forced_detection", false);
+        let roi = match t.get("roi_size_cm") {
+            None => Some(None),
+            Some(n) => match scalar_or_vec::<2>(cx, n, &t.kp("roi_size_cm"), Range::pos(1e3, "cm")) {
+                Some(r) => match size {
+                    Some(s) if r[0] > s[0] * (1.0 + 1e-9) || r[1] > s[1] * (1.0 + 1e-9) => {
+                        cx.err(
+                            n.loc,
+                            &t.kp("roi_size_cm"),
+                            format!("the region of interest {} × {} cm is larger than the face {} × {} cm", fmt_num(r[0]), fmt_num(r[1]), fmt_num(s[0]), fmt_num(s[1])),
+                            Some(format!("use `roi_size_cm = [{}, {}]` or smaller", fmt_num(r[0].min(s[0])), fmt_num(r[1].min(s[1])))),
+                        );
+                        None
+                    }
+                    _ => Some(Some(r)),
+                },
+                None => None,
+            },
+        };
         let face_points = match t.get("forced_detection_face_points") {
             Some(n) => uint_in(cx, n, &t.kp("forced_detection_face_points"), 1, 64),
             None => Some(1),
@@ -1791,6 +1810,7 @@ impl<'f> Walk<'f> {
             pixels: pixels?,
             response: response?,
             anti_scatter_grid: grid?,
+            roi_size_cm: roi?,
             forced_detection: forced,
             forced_detection_face_points: face_points? as usize,
             forced_detection_from: fd_from,

@@ -1465,6 +1465,9 @@ pub fn from_deck(
     let c = det.position_cm;
     let mut spec = DetectorSpec::new(Vec3::new(c[0], c[1], c[2]), axis, det.size_cm, [det.pixels[0] as usize, det.pixels[1] as usize], response);
     spec.forced_detection = det.forced_detection;
+    if let Some(r) = det.roi_size_cm {
+        spec.roi_size_cm = r;
+    }
     spec.fd_face_points = det.forced_detection_face_points;
     spec.fd_coherent_sampling = det.forced_detection_coherent_directions;
     spec.fd_roulette_below = det.forced_detection_roulette_below;

@@ -1,15 +1,19 @@
 //! Reference problem P2 (imaging scatter): an 80 kV tube (2.5 mm Al), a point source collimated
 //! to a 30 × 30 cm field at 100 cm, a 20 cm water slab ending 2 cm before the detector, and a
 //! 40 × 40 cm detector at 100 cm (energy-fluence response, no grid), in vacuum. The figure of
-//! merit is the efficiency 1/(σ_rel² T) of the mean scatter in the central 5 × 5 cm ROI.
+//! merit is the efficiency 1/(σ_rel² T) of the mean scatter in the central ROI (5 × 5 cm for
+//! the reference figure, [`REFERENCE_ROI_CM`]).
 
 use super::{summary, DetectorScorer};
 use crate::score::Scorer;
 use crate::transport::{run, Problem, RunSettings};
 
-/// The deck of P2 with the given pixel pitch (cm; 0.2 for the reference), estimator and
-/// histories.
-pub fn deck(pixel_pitch_cm: f64, forced_detection: bool, histories: u64) -> String {
+/// Side of the central ROI of the reference figure (cm).
+pub const REFERENCE_ROI_CM: f64 = 5.0;
+
+/// The deck of P2 with the given pixel pitch (cm; 0.2 for the reference), ROI side (cm),
+/// estimator and histories.
+pub fn deck(pixel_pitch_cm: f64, roi_cm: f64, forced_detection: bool, histories: u64) -> String {
     format!(
         r#"# P2: imaging scatter reference problem (demo scenario).
 [run]
@@ -43,6 +47,7 @@ kind = "detector"
 position_cm = [0, 0, 0]
 size_cm = [40, 40]
 pixel_pitch_cm = {pixel_pitch_cm}
+roi_size_cm = {roi_cm}
 response = "energy_fluence"
 forced_detection = {forced_detection}
 "#
@@ -50,8 +55,8 @@ forced_detection = {forced_detection}
 }
 
 /// The P2 problem.
-pub fn problem(pixel_pitch_cm: f64, forced_detection: bool) -> Problem {
-    let text = deck(pixel_pitch_cm, forced_detection, 1);
+pub fn problem(pixel_pitch_cm: f64, roi_cm: f64, forced_detection: bool) -> Problem {
+    let text = deck(pixel_pitch_cm, roi_cm, forced_detection, 1);
     let d = crate::deck::load_str(&text, std::path::Path::new("p2.toml")).expect("P2 deck is valid");
     crate::setup::build(&d.resolved).expect("P2 sets up").0
 }
@@ -74,8 +79,8 @@ pub struct Estimate {
 }
 
 /// Runs P2 with one estimator.
-pub fn estimate(pixel_pitch_cm: f64, forced_detection: bool, histories: u64, threads: usize) -> Estimate {
-    let p = problem(pixel_pitch_cm, forced_detection);
+pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, forced_detection: bool, histories: u64, threads: usize) -> Estimate {
+    let p = problem(pixel_pitch_cm, roi_cm, forced_detection);
     let r = run(&p, &RunSettings { histories, seed: 2, chunk_histories: 2_000, threads, progress: false });
     let Scorer::Detector(d) = &r.scorers[0] else { unreachable!("P2 has one detector") };
     let d: &DetectorScorer = d;
@@ -93,9 +98,9 @@ pub fn estimate(pixel_pitch_cm: f64, forced_detection: bool, histories: u64, thr
 }
 
 /// Analog and forced-detection estimates of P2 and the efficiency gain of the latter.
-pub fn efficiency_gain(pixel_pitch_cm: f64, analog_histories: u64, forced_histories: u64, threads: usize) -> (Estimate, Estimate, f64) {
-    let a = estimate(pixel_pitch_cm, false, analog_histories, threads);
-    let f = estimate(pixel_pitch_cm, true, forced_histories, threads);
+pub fn efficiency_gain(pixel_pitch_cm: f64, roi_cm: f64, analog_histories: u64, forced_histories: u64, threads: usize) -> (Estimate, Estimate, f64) {
+    let a = estimate(pixel_pitch_cm, roi_cm, false, analog_histories, threads);
+    let f = estimate(pixel_pitch_cm, roi_cm, true, forced_histories, threads);
     let gain = f.efficiency_per_s / a.efficiency_per_s;
     (a, f, gain)
 }

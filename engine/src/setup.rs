@@ -257,8 +257,9 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                     Some(Medium::new(m, mats.nominal[m as usize]))
                 }
             };
-            // World: the grid plus 1 cm, stretched to hold the source and every detector face
-            // (photons leaving it escape, so a face outside would see nothing).
+            // World: the grid plus 1 cm, stretched to hold the source, every detector face and
+            // every air-kerma disc (photons leaving it escape, so a scorer outside would see
+            // nothing).
             let gb = grid.bounds();
             let src = vec3(match &d.source.shape {
                 SourceShape::Pencil { position_cm, .. } | SourceShape::Parallel { position_cm, .. } | SourceShape::Point { position_cm, .. } => *position_cm,
@@ -281,6 +282,11 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                     half = half.with_axis(u, 0.5 * det.size_cm[0]).with_axis(v, 0.5 * det.size_cm[1]);
                     lo = lo.min(c - half);
                     hi = hi.max(c + half);
+                }
+                if let deck::ScoreKind::AirKerma { position_cm, radius_cm, .. } = &sc.kind {
+                    let r = Vec3::new(*radius_cm, *radius_cm, *radius_cm);
+                    lo = lo.min(vec3(*position_cm) - r);
+                    hi = hi.max(vec3(*position_cm) + r);
                 }
             }
             let one = Vec3::new(1.0, 1.0, 1.0);
@@ -314,6 +320,17 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                 Scorer::transmitted_spectrum(*energy_min_kev, (energy_max_kev - energy_min_kev) / bins as f64, bins, false)
             }
             ScoreKind::AirKerma { position_cm, normal_axis, radius_cm } => {
+                let wb = geometry.world_bounds();
+                let c = vec3(*position_cm);
+                if !(0..3).all(|a| wb.min_cm.axis(a) < c.axis(a) && c.axis(a) < wb.max_cm.axis(a)) {
+                    return Err(err(
+                        &key,
+                        format!(
+                            "the air-kerma disc at ({}, {}, {}) cm lies outside the problem's world ({:?} to {:?} cm), where no photon reaches it; move it closer to the object",
+                            c.x, c.y, c.z, [wb.min_cm.x, wb.min_cm.y, wb.min_cm.z], [wb.max_cm.x, wb.max_cm.y, wb.max_cm.z]
+                        ),
+                    ));
+                }
                 let air = library::lookup("air").map_err(|e| err(&key, e.to_string()))?;
                 air.absorption_table().map_err(|e| err(&key, e.to_string()))?;
                 Scorer::AirKerma {
@@ -493,5 +510,55 @@ fn build_voxels(v: &deck::Voxels, mats: &mut MaterialSet) -> Result<(dosemill_ge
             }
             Ok((g, None))
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::score::Scorer;
+    use crate::transport::{run, RunSettings};
+
+    fn deck(geometry: &str, air_kerma_z: f64) -> String {
+        format!(
+            r#"
+[run]
+histories = 1
+[source]
+kind = "point"
+position_cm = [0, 0, -100]
+field = {{ shape = "rectangle", width_cm = 10, height_cm = 10 }}
+field_distance_cm = 100
+energy_kev = 60
+{geometry}
+[[score]]
+name = "kerma"
+kind = "air_kerma"
+position_cm = [0, 0, {air_kerma_z}]
+radius_cm = 1
+"#
+        )
+    }
+
+    const VOXELS: &str = "[geometry]\nkind = \"voxels\"\nworld = \"air\"\nvoxels = [6, 6, 4]\nvoxel_size_cm = 1\n[geometry.phantom]\nfill = \"water\"";
+    const SLABS: &str = "[geometry]\nkind = \"slabs\"\nworld = \"air\"\nstart_z_cm = 0\n[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 4";
+
+    // Behind a voxel phantom (grid z 0–4 cm) an air-kerma disc 20 cm further sees the
+    // transmitted beam: the world box holds it.
+    #[test]
+    fn voxel_world_holds_air_kerma_discs() {
+        let d = crate::deck::load_str(&deck(VOXELS, 24.0), std::path::Path::new("runs/t.toml")).unwrap_or_else(|e| panic!("{e:?}"));
+        let p = super::build(&d.resolved).unwrap_or_else(|e| panic!("{e}")).0;
+        let r = run(&p, &RunSettings { histories: 4000, seed: 1, chunk_histories: 1000, threads: 1, progress: false });
+        let Scorer::AirKerma { tally, .. } = &r.scorers[0] else { panic!("not an air-kerma scorer") };
+        let (m, _) = tally.mean_and_sigma(r.histories);
+        assert!(m.iter().any(|&v| v > 0.0), "the disc behind the phantom scores: {m:?}");
+    }
+
+    // An air-kerma disc beyond the slab world (1 m behind the stack) is refused, naming the key.
+    #[test]
+    fn air_kerma_disc_outside_the_world_is_an_error() {
+        let d = crate::deck::load_str(&deck(SLABS, 300.0), std::path::Path::new("runs/t.toml")).unwrap_or_else(|e| panic!("{e:?}"));
+        let e = super::build(&d.resolved).err().expect("a disc outside the world is refused");
+        assert!(e.key.starts_with("score") && e.message.contains("outside the problem's world"), "{e:?}");
     }
 }

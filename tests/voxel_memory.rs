@@ -1,8 +1,9 @@
 //! Memory of a large voxel dose grid: the run must not copy the grid to write its result file or
 //! its checkpoint (the result's per-voxel arrays are produced block by block from the shared
 //! tally as the file is written, the checkpoint is streamed). The peak resident memory the run
-//! reports is compared with the size of one copy of the grid's sums; the file is read back with
-//! h5py (an outside reader) and checked against the definition dose = energy / mass.
+//! reports is compared with the size of one copy of the grid's sums; `dosemill report` of the
+//! result must stay far below the file's size (lazy reading); the file is read back with h5py
+//! (an outside reader) and checked against the definition dose = energy / mass.
 
 use std::path::PathBuf;
 use std::process::Command;
@@ -94,6 +95,26 @@ fn writing_a_large_dose_grid_makes_no_copy_of_it() {
     let peak = peak_gib(&stdout);
     println!("peak {peak:.3} GiB, bound {bound_gib:.3} GiB");
     assert!(peak <= bound_gib, "peak memory {peak:.3} GiB above {bound_gib:.3} GiB");
+
+    // `dosemill report` reads the grid lazily: its summary walks the arrays block by block and
+    // the slice plot reads one slice. Criterion: peak resident memory (from /usr/bin/time, a
+    // standard tool) below 120 MiB, where reading the 320 MB file whole and then its arrays
+    // needs over 600 MB.
+    let out_file = dir.join("grid.h5");
+    let plots = dir.join("plots");
+    let rss = dir.join("report_rss.txt");
+    let r = Command::new("/usr/bin/time")
+        .args(["-f", "%M", "-o", rss.to_str().unwrap(), env!("CARGO_BIN_EXE_dosemill"), "report", out_file.to_str().unwrap(), "--plots", plots.to_str().unwrap()])
+        .output()
+        .unwrap();
+    let report = String::from_utf8_lossy(&r.stdout).into_owned();
+    assert!(r.status.success(), "{report}\n{}", String::from_utf8_lossy(&r.stderr));
+    assert!(report.contains("dose: shape [200, 200, 200]") && report.contains("relative uncertainty"), "{report}");
+    assert!(plots.join("grid_dose.png").exists() || std::fs::read_dir(&plots).unwrap().any(|e| e.unwrap().file_name().to_string_lossy().contains("dose")), "slice plot written");
+    let kb: f64 = std::fs::read_to_string(&rss).unwrap().lines().last().unwrap().trim().parse().unwrap();
+    let report_mib = kb / 1024.0;
+    println!("report peak {report_mib:.1} MiB");
+    assert!(report_mib < 120.0, "dosemill report peaked at {report_mib:.1} MiB");
 
     let ok = Command::new("python3").args(["-c", "import h5py"]).status().map(|s| s.success()).unwrap_or(false);
     if !ok {

@@ -254,14 +254,22 @@ where
 }
 
 /// Read a result file into the tree. Attributes, groups and datasets come back sorted by name.
+///
+/// The file is read lazily: metadata and small datasets at once, and a contiguous
+/// little-endian float64 dataset of at least [`LAZY_MIN_ELEMENTS`] elements as a
+/// [`DataBuf::Produced`] that reads the elements it is asked for from the file (so a report
+/// of a 512³ dose grid holds one slice, or one block of 65 536 values, not the grid). Such a
+/// dataset keeps the file open; replacing the file by rename leaves the data readable.
 pub fn read(path: impl AsRef<Path>) -> Result<ResultFile, OutputError> {
     let path = path.as_ref();
-    let bytes = std::fs::read(path).map_err(|source| OutputError::Io {
+    let handle = std::fs::File::open(path).map_err(|source| OutputError::Io {
         path: path.to_owned(),
         action: "cannot read result file",
         source,
     })?;
-    let file = h5::File::from_bytes(bytes).map_err(|e| hdf5_err(path, "/".into(), e))?;
+    let file_len = handle.metadata().map(|m| m.len()).unwrap_or(0);
+    let file = h5::File::open_streaming(path).map_err(|e| hdf5_err(path, "/".into(), e))?;
+    let lazy = Lazy { handle: std::sync::Arc::new(handle), file_len };
     let root = file.root();
     let attrs = read_attrs(
         path,
@@ -277,7 +285,7 @@ pub fn read(path: impl AsRef<Path>) -> Result<ResultFile, OutputError> {
     }
     let mut groups = Vec::new();
     for name in sorted(root.groups().map_err(|e| hdf5_err(path, "/".into(), e))?) {
-        groups.push(read_group(path, &file, &name)?);
+        groups.push(read_group(path, &file, &lazy, &name)?);
     }
     Ok(ResultFile { attrs, groups })
 }
@@ -459,18 +467,51 @@ fn hdf5_err(path: &Path, object: String, e: h5::Error) -> OutputError {
     }
 }
 
-fn read_group(path: &Path, file: &h5::File, gpath: &str) -> Result<Group, OutputError> {
+/// A lazily read float64 dataset of `n` elements: contiguous, little-endian, inside the file;
+/// `None` for any other storage (then it is read at once).
+fn lazy_f64(ds: &h5::Dataset, lazy: &Lazy, n: usize) -> Option<super::Produced> {
+    let little_endian = matches!(ds.datatype().ok()?, h5::Datatype::FloatingPoint { size: 8, byte_order: h5::DatatypeByteOrder::LittleEndian, .. });
+    let address = match ds.layout().ok()? {
+        h5::Layout::Contiguous { address: Some(a), size } if size == 8 * n as u64 => a,
+        _ => return None,
+    };
+    if !little_endian || address.checked_add(8 * n as u64)? > lazy.file_len {
+        return None;
+    }
+    let handle = std::sync::Arc::clone(&lazy.handle);
+    Some(super::Produced::new(n, move |start, out| {
+        use std::os::unix::fs::FileExt;
+        let mut bytes = vec![0u8; 8 * out.len()];
+        if let Err(err) = handle.read_exact_at(&mut bytes, address + 8 * start as u64) {
+            panic!("result file became unreadable while in use (elements {start}..{}): {err}", start + out.len());
+        }
+        for (v, b) in out.iter_mut().zip(bytes.chunks_exact(8)) {
+            *v = f64::from_le_bytes(b.try_into().expect("8 bytes"));
+        }
+    }))
+}
+
+/// Smallest float64 dataset read lazily by [`read`] (elements).
+pub const LAZY_MIN_ELEMENTS: usize = 1 << 20;
+
+/// The open result file behind lazily read datasets.
+struct Lazy {
+    handle: std::sync::Arc<std::fs::File>,
+    file_len: u64,
+}
+
+fn read_group(path: &Path, file: &h5::File, lazy: &Lazy, gpath: &str) -> Result<Group, OutputError> {
     let object = format!("/{gpath}");
     let e = |err| hdf5_err(path, object.clone(), err);
     let g = file.group(gpath).map_err(e)?;
     let attrs = read_attrs(path, &object, g.attrs().map_err(e)?)?;
     let mut datasets = Vec::new();
     for name in sorted(g.datasets().map_err(e)?) {
-        datasets.push(read_dataset(path, file, &format!("{gpath}/{name}"), &name)?);
+        datasets.push(read_dataset(path, file, lazy, &format!("{gpath}/{name}"), &name)?);
     }
     let mut groups = Vec::new();
     for name in sorted(g.groups().map_err(e)?) {
-        groups.push(read_group(path, file, &format!("{gpath}/{name}"))?);
+        groups.push(read_group(path, file, lazy, &format!("{gpath}/{name}"))?);
     }
     let name = gpath.rsplit('/').next().unwrap_or(gpath).to_owned();
     Ok(Group {
@@ -484,6 +525,7 @@ fn read_group(path: &Path, file: &h5::File, gpath: &str) -> Result<Group, Output
 fn read_dataset(
     path: &Path,
     file: &h5::File,
+    lazy: &Lazy,
     dpath: &str,
     name: &str,
 ) -> Result<Dataset, OutputError> {
@@ -496,7 +538,12 @@ fn read_dataset(
         .into_iter()
         .map(|n| n as usize)
         .collect();
+    let n: usize = shape.iter().product();
     let data = match ds.dtype().map_err(e)? {
+        h5::DType::F64 if n >= LAZY_MIN_ELEMENTS => match lazy_f64(&ds, lazy, n) {
+            Some(p) => DataBuf::Produced(p),
+            None => DataBuf::F64(ds.read_f64().map_err(e)?),
+        },
         h5::DType::F64 => DataBuf::F64(ds.read_f64().map_err(e)?),
         h5::DType::F32 => DataBuf::F32(ds.read_f32().map_err(e)?),
         h5::DType::I64 => DataBuf::I64(ds.read_i64().map_err(e)?),

@@ -199,14 +199,22 @@ fn plot_group(
                     .and_then(|(a, b)| edges_of(g, d, 2).map(|c| (a, b, c)));
                 match axes {
                     Ok(((e0, z), (e1, r), (e2, c))) => {
-                        let values = d.data.to_f64().unwrap_or_default();
                         let (n0, n1, n2) = (d.shape[0], d.shape[1], d.shape[2]);
-                        if n0 == 0 || n1 == 0 || n2 == 0 {
+                        if n0 == 0 || n1 == 0 || n2 == 0 || d.data.len() != n0 * n1 * n2 {
                             out.skipped.push(format!("{gpath}/{}: empty grid", d.name));
                             continue;
                         }
                         let k = n0 / 2;
-                        let slice = &values[k * n1 * n2..(k + 1) * n1 * n2];
+                        // Only the slice is read (a lazily read grid stays on disk).
+                        let slice_values: Vec<f64> = match &d.data {
+                            crate::output::DataBuf::Produced(p) => {
+                                let mut v = vec![0.0; n1 * n2];
+                                p.fill(k * n1 * n2, &mut v);
+                                v
+                            }
+                            other => other.to_f64().map(|v| v[k * n1 * n2..(k + 1) * n1 * n2].to_vec()).unwrap_or_default(),
+                        };
+                        let slice = &slice_values[..];
                         let centre = 0.5 * (z[k] + z[k + 1]);
                         let zlabel = e0
                             .attr("label")

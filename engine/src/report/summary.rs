@@ -63,6 +63,77 @@ impl DatasetStats {
     }
 }
 
+impl DatasetStats {
+    /// [`DatasetStats::compute`] over data read block by block (a lazily read dataset), with
+    /// the same results bit for bit: two passes of [`crate::output::Produced::BLOCK`] elements.
+    pub fn compute_data(values: &DataBuf, shape: &[usize], sigma: Option<&DataBuf>) -> Option<Self> {
+        let n = values.len();
+        let fill = |d: &DataBuf, start: usize, out: &mut [f64]| -> bool {
+            match d {
+                DataBuf::Produced(p) => {
+                    p.fill(start, out);
+                    true
+                }
+                DataBuf::F64(v) => {
+                    out.copy_from_slice(&v[start..start + out.len()]);
+                    true
+                }
+                _ => false,
+            }
+        };
+        let sigma = sigma.filter(|s| s.len() == n);
+        let block = crate::output::Produced::BLOCK;
+        let (mut vb, mut sb) = (vec![0.0; block.min(n)], vec![0.0; block.min(n)]);
+        let mut total = 0.0;
+        let mut best: Option<(usize, f64)> = None;
+        let mut start = 0;
+        while start < n {
+            let k = block.min(n - start);
+            if !fill(values, start, &mut vb[..k]) {
+                return None;
+            }
+            for (j, &v) in vb[..k].iter().enumerate() {
+                total += v;
+                if !v.is_nan() && best.is_none_or(|(_, b)| v > b) {
+                    best = Some((start + j, v));
+                }
+            }
+            start += k;
+        }
+        let peak = best.map(|(_, v)| v);
+        let peak_index = best.map(|(i, _)| unravel(i, shape)).unwrap_or_default();
+        let rel_sigma_at_peak = match (best, sigma) {
+            (Some((i, v)), Some(s)) if v != 0.0 => {
+                let mut one = [0.0];
+                fill(s, i, &mut one).then(|| one[0] / v.abs())
+            }
+            _ => None,
+        };
+        let mean_rel_sigma_high = match (peak, sigma) {
+            (Some(p), Some(s)) if p > 0.0 => {
+                let (mut sum, mut count) = (0.0, 0usize);
+                let mut start = 0;
+                while start < n {
+                    let k = block.min(n - start);
+                    if !(fill(values, start, &mut vb[..k]) && fill(s, start, &mut sb[..k])) {
+                        return None;
+                    }
+                    for (&v, &e) in vb[..k].iter().zip(&sb[..k]) {
+                        if v >= 0.5 * p {
+                            sum += e / v;
+                            count += 1;
+                        }
+                    }
+                    start += k;
+                }
+                Some((sum / count as f64, count))
+            }
+            _ => None,
+        };
+        Some(DatasetStats { total, peak, peak_index, rel_sigma_at_peak, mean_rel_sigma_high })
+    }
+}
+
 /// Row-major flat index → multi-index.
 fn unravel(mut flat: usize, shape: &[usize]) -> Vec<usize> {
     let mut idx = vec![0; shape.len()];
@@ -230,6 +301,19 @@ fn dataset_summary(out: &mut String, g: &Group, d: &Dataset, is_axis: bool) {
         }
         return;
     }
+    if let (DataBuf::Produced(_), false) = (&d.data, is_axis) {
+        // A lazily read large dataset: figures block by block, never the whole array.
+        if sigma_base(g, d).is_none() {
+            let _ = writeln!(out, "  {}: shape {shape}, units {}, {}", d.name, d.units, d.data.type_name());
+            let sigma = g.dataset(&format!("{}{SIGMA_SUFFIX}", d.name)).filter(|s| s.shape == d.shape).map(|s| &s.data);
+            if let Some(st) = DatasetStats::compute_data(&d.data, &d.shape, sigma) {
+                write_stats(out, g, d, &st, sigma.is_some());
+            }
+        } else if let Some(base) = sigma_base(g, d) {
+            let _ = writeln!(out, "  {}: 1σ uncertainty of {}, shape {shape}, units {}", d.name, base.name, d.units);
+        }
+        return;
+    }
     let values = d.data.to_f64().unwrap_or_default();
     if is_axis {
         let (lo, hi) = (
@@ -264,6 +348,11 @@ fn dataset_summary(out: &mut String, g: &Group, d: &Dataset, is_axis: bool) {
     );
     let sigma = sigma_of(g, d);
     let st = DatasetStats::compute(&values, &d.shape, sigma.as_deref());
+    write_stats(out, g, d, &st, sigma.is_some());
+}
+
+/// The total, peak and uncertainty lines of a dataset's summary.
+fn write_stats(out: &mut String, g: &Group, d: &Dataset, st: &DatasetStats, has_sigma: bool) {
     let Some(peak) = st.peak else {
         let _ = writeln!(out, "      empty");
         return;
@@ -299,7 +388,7 @@ fn dataset_summary(out: &mut String, g: &Group, d: &Dataset, is_axis: bool) {
         st.peak_index,
         u = d.units
     );
-    if sigma.is_some() {
+    if has_sigma {
         let at_peak = st
             .rel_sigma_at_peak
             .map_or("n/a".to_string(), |r| format!("{:.2} %", 100.0 * r));
@@ -318,6 +407,28 @@ fn dataset_summary(out: &mut String, g: &Group, d: &Dataset, is_axis: bool) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The block-by-block figures of a lazily read dataset equal the in-memory ones bit for
+    // bit (sums in the same order), over several blocks, with NaNs, zeros and a σ array.
+    #[test]
+    fn block_stats_equal_in_memory_stats() {
+        let n = 3 * crate::output::Produced::BLOCK + 123;
+        let values: Vec<f64> = (0..n).map(|i| if i % 977 == 0 { f64::NAN } else { ((i * 7919) % 10007) as f64 * 1e-3 - 0.5 }).collect();
+        let sigma: Vec<f64> = (0..n).map(|i| ((i * 31) % 101) as f64 * 1e-4).collect();
+        let shape = [3, n / 3 + 1];
+        let shape = if shape[0] * shape[1] == n { shape.to_vec() } else { vec![n] };
+        let want = DatasetStats::compute(&values, &shape, Some(&sigma));
+        let (v, s) = (values.clone(), sigma.clone());
+        let pv = DataBuf::Produced(crate::output::Produced::new(n, move |st, out: &mut [f64]| out.copy_from_slice(&v[st..st + out.len()])));
+        let ps = DataBuf::Produced(crate::output::Produced::new(n, move |st, out: &mut [f64]| out.copy_from_slice(&s[st..st + out.len()])));
+        let got = DatasetStats::compute_data(&pv, &shape, Some(&ps)).expect("f64 data");
+        assert_eq!(got.total.to_bits(), want.total.to_bits());
+        assert_eq!(got.peak.map(f64::to_bits), want.peak.map(f64::to_bits));
+        assert_eq!(got.peak_index, want.peak_index);
+        assert_eq!(got.rel_sigma_at_peak.map(f64::to_bits), want.rel_sigma_at_peak.map(f64::to_bits));
+        assert_eq!(got.mean_rel_sigma_high.map(|(m, k)| (m.to_bits(), k)), want.mean_rel_sigma_high.map(|(m, k)| (m.to_bits(), k)));
+        assert!(want.mean_rel_sigma_high.is_some() && want.rel_sigma_at_peak.is_some());
+    }
 
     #[test]
     fn unravel_is_row_major() {

@@ -123,21 +123,13 @@ fn fill_produced(
         };
         sink.inner.seek(SeekFrom::Start(address)).map_err(io_err)?;
         let mut bytes = Vec::with_capacity(8 * super::Produced::BLOCK);
-        let mut failed = None;
-        data.for_each_block(|_, block| {
-            if failed.is_some() {
-                return;
-            }
+        let mut start = 0;
+        while start < data.len() {
+            let k = super::Produced::BLOCK.min(data.len() - start);
             bytes.clear();
-            for v in block {
-                bytes.extend_from_slice(&v.to_le_bytes());
-            }
-            if let Err(e) = sink.write_all(&bytes) {
-                failed = Some(e);
-            }
-        });
-        if let Some(e) = failed {
-            return Err(io_err(e));
+            data.le_bytes(start, k, &mut bytes);
+            sink.write_all(&bytes).map_err(io_err)?;
+            start += k;
         }
     }
     sink.inner.seek(SeekFrom::End(0)).map_err(io_err)?;
@@ -335,8 +327,14 @@ fn write_dataset(db: &mut h5::DatasetBuilder, d: &Dataset) {
     match &d.data {
         // A zeroed allocation: its pages stay unmapped until written, and the builder only
         // reads them (see `fill_produced`).
-        DataBuf::Produced(p) if p.len() >= PRODUCED_MIN_ELEMENTS => db.with_raw_data(h5::make_f64_type(), vec![0u8; 8 * p.len()], p.len() as u64),
-        DataBuf::Produced(p) => db.with_f64_data(&p.to_vec()),
+        DataBuf::Produced(p) if p.len() >= PRODUCED_MIN_ELEMENTS => {
+            let t = if p.is_u64() { h5::make_u64_type() } else { h5::make_f64_type() };
+            db.with_raw_data(t, vec![0u8; 8 * p.len()], p.len() as u64)
+        }
+        DataBuf::Produced(p) => match p.to_u64_vec() {
+            Some(v) => db.with_u64_data(&v),
+            None => db.with_f64_data(&p.to_vec()),
+        },
         DataBuf::F64(v) => db.with_f64_data(v),
         DataBuf::F32(v) => db.with_f32_data(v),
         DataBuf::I64(v) => db.with_i64_data(v),
@@ -467,10 +465,15 @@ fn hdf5_err(path: &Path, object: String, e: h5::Error) -> OutputError {
     }
 }
 
-/// A lazily read float64 dataset of `n` elements: contiguous, little-endian, inside the file;
-/// `None` for any other storage (then it is read at once).
-fn lazy_f64(ds: &h5::Dataset, lazy: &Lazy, n: usize) -> Option<super::Produced> {
-    let little_endian = matches!(ds.datatype().ok()?, h5::Datatype::FloatingPoint { size: 8, byte_order: h5::DatatypeByteOrder::LittleEndian, .. });
+/// A lazily read dataset of `n` 8-byte elements (u64 when `unsigned`, else float64):
+/// contiguous, little-endian, inside the file; `None` for any other storage (then it is read
+/// at once).
+fn lazy_words(ds: &h5::Dataset, lazy: &Lazy, n: usize, unsigned: bool) -> Option<super::Produced> {
+    let little_endian = match ds.datatype().ok()? {
+        h5::Datatype::FloatingPoint { size: 8, byte_order, .. } if !unsigned => byte_order == h5::DatatypeByteOrder::LittleEndian,
+        h5::Datatype::FixedPoint { size: 8, byte_order, .. } if unsigned => byte_order == h5::DatatypeByteOrder::LittleEndian,
+        _ => false,
+    };
     let address = match ds.layout().ok()? {
         h5::Layout::Contiguous { address: Some(a), size } if size == 8 * n as u64 => a,
         _ => return None,
@@ -479,19 +482,32 @@ fn lazy_f64(ds: &h5::Dataset, lazy: &Lazy, n: usize) -> Option<super::Produced> 
         return None;
     }
     let handle = std::sync::Arc::clone(&lazy.handle);
-    Some(super::Produced::new(n, move |start, out| {
+    let read = move |start: usize, count: usize| -> Vec<u8> {
         use std::os::unix::fs::FileExt;
-        let mut bytes = vec![0u8; 8 * out.len()];
+        let mut bytes = vec![0u8; 8 * count];
         if let Err(err) = handle.read_exact_at(&mut bytes, address + 8 * start as u64) {
-            panic!("result file became unreadable while in use (elements {start}..{}): {err}", start + out.len());
+            panic!("result file became unreadable while in use (elements {start}..{}): {err}", start + count);
         }
-        for (v, b) in out.iter_mut().zip(bytes.chunks_exact(8)) {
-            *v = f64::from_le_bytes(b.try_into().expect("8 bytes"));
-        }
-    }))
+        bytes
+    };
+    Some(if unsigned {
+        super::Produced::new_u64(n, move |start, out| {
+            let bytes = read(start, out.len());
+            for (v, b) in out.iter_mut().zip(bytes.chunks_exact(8)) {
+                *v = u64::from_le_bytes(b.try_into().expect("8 bytes"));
+            }
+        })
+    } else {
+        super::Produced::new(n, move |start, out| {
+            let bytes = read(start, out.len());
+            for (v, b) in out.iter_mut().zip(bytes.chunks_exact(8)) {
+                *v = f64::from_le_bytes(b.try_into().expect("8 bytes"));
+            }
+        })
+    })
 }
 
-/// Smallest float64 dataset read lazily by [`read`] (elements).
+/// Smallest float64 or u64 dataset read lazily by [`read`] (elements).
 pub const LAZY_MIN_ELEMENTS: usize = 1 << 20;
 
 /// The open result file behind lazily read datasets.
@@ -540,7 +556,7 @@ fn read_dataset(
         .collect();
     let n: usize = shape.iter().product();
     let data = match ds.dtype().map_err(e)? {
-        h5::DType::F64 if n >= LAZY_MIN_ELEMENTS => match lazy_f64(&ds, lazy, n) {
+        h5::DType::F64 if n >= LAZY_MIN_ELEMENTS => match lazy_words(&ds, lazy, n, false) {
             Some(p) => DataBuf::Produced(p),
             None => DataBuf::F64(ds.read_f64().map_err(e)?),
         },
@@ -548,6 +564,10 @@ fn read_dataset(
         h5::DType::F32 => DataBuf::F32(ds.read_f32().map_err(e)?),
         h5::DType::I64 => DataBuf::I64(ds.read_i64().map_err(e)?),
         h5::DType::I32 => DataBuf::I32(ds.read_i32().map_err(e)?),
+        h5::DType::U64 if n >= LAZY_MIN_ELEMENTS => match lazy_words(&ds, lazy, n, true) {
+            Some(p) => DataBuf::Produced(p),
+            None => DataBuf::U64(ds.read_u64().map_err(e)?),
+        },
         h5::DType::U64 => DataBuf::U64(ds.read_u64().map_err(e)?),
         h5::DType::U32 => DataBuf::U32(ds.read_u32().map_err(e)?),
         h5::DType::U16 => DataBuf::U16(ds.read_u16().map_err(e)?),

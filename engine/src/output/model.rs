@@ -143,19 +143,32 @@ pub enum DataBuf {
 }
 
 /// Elements produced on demand: `fill(start, out)` writes elements `start .. start + out.len()`.
+/// Float64 (scores) or unsigned 64-bit words (raw sums of shard files).
 #[derive(Clone)]
 pub struct Produced {
     len: usize,
-    fill: Arc<dyn Fn(usize, &mut [f64]) + Send + Sync>,
+    fill: ProducedFill,
+}
+
+#[derive(Clone)]
+enum ProducedFill {
+    F64(Arc<dyn Fn(usize, &mut [f64]) + Send + Sync>),
+    U64(Arc<dyn Fn(usize, &mut [u64]) + Send + Sync>),
 }
 
 impl Produced {
     /// Elements per block when a produced array is walked.
     pub const BLOCK: usize = 1 << 16;
 
-    /// `len` elements made by `fill`, which must give the same values whenever it is called.
+    /// `len` float64 elements made by `fill`, which must give the same values whenever it is
+    /// called.
     pub fn new(len: usize, fill: impl Fn(usize, &mut [f64]) + Send + Sync + 'static) -> Self {
-        Produced { len, fill: Arc::new(fill) }
+        Produced { len, fill: ProducedFill::F64(Arc::new(fill)) }
+    }
+
+    /// `len` unsigned 64-bit elements made by `fill` (same rule).
+    pub fn new_u64(len: usize, fill: impl Fn(usize, &mut [u64]) + Send + Sync + 'static) -> Self {
+        Produced { len, fill: ProducedFill::U64(Arc::new(fill)) }
     }
 
     /// Number of elements.
@@ -168,10 +181,53 @@ impl Produced {
         self.len == 0
     }
 
-    /// Writes elements `start .. start + out.len()` into `out`.
+    /// True for unsigned 64-bit elements.
+    pub fn is_u64(&self) -> bool {
+        matches!(self.fill, ProducedFill::U64(_))
+    }
+
+    /// Writes elements `start .. start + out.len()` into `out` (u64 elements converted).
     pub fn fill(&self, start: usize, out: &mut [f64]) {
         assert!(start + out.len() <= self.len, "produced range past the end");
-        (self.fill)(start, out)
+        match &self.fill {
+            ProducedFill::F64(f) => f(start, out),
+            ProducedFill::U64(f) => {
+                let mut w = vec![0u64; out.len()];
+                f(start, &mut w);
+                for (o, v) in out.iter_mut().zip(w) {
+                    *o = v as f64;
+                }
+            }
+        }
+    }
+
+    /// Writes the u64 elements `start .. start + out.len()` into `out`; `false` (nothing
+    /// written) for float64 elements.
+    pub fn fill_u64(&self, start: usize, out: &mut [u64]) -> bool {
+        assert!(start + out.len() <= self.len, "produced range past the end");
+        match &self.fill {
+            ProducedFill::U64(f) => {
+                f(start, out);
+                true
+            }
+            ProducedFill::F64(_) => false,
+        }
+    }
+
+    /// Appends the little-endian bytes of elements `start .. start + n` to `out`.
+    pub fn le_bytes(&self, start: usize, n: usize, out: &mut Vec<u8>) {
+        match &self.fill {
+            ProducedFill::F64(f) => {
+                let mut v = vec![0.0; n];
+                f(start, &mut v);
+                v.iter().for_each(|x| out.extend_from_slice(&x.to_le_bytes()));
+            }
+            ProducedFill::U64(f) => {
+                let mut v = vec![0u64; n];
+                f(start, &mut v);
+                v.iter().for_each(|x| out.extend_from_slice(&x.to_le_bytes()));
+            }
+        }
     }
 
     /// Calls `f(start, block)` for consecutive blocks of at most [`Produced::BLOCK`] elements.
@@ -186,7 +242,7 @@ impl Produced {
         }
     }
 
-    /// All elements in one vector.
+    /// All elements in one vector (u64 elements converted).
     pub fn to_vec(&self) -> Vec<f64> {
         let mut v = vec![0.0; self.len];
         if self.len > 0 {
@@ -195,13 +251,23 @@ impl Produced {
         v
     }
 
+    /// All u64 elements in one vector; `None` for float64 elements.
+    pub fn to_u64_vec(&self) -> Option<Vec<u64>> {
+        let mut v = vec![0u64; self.len];
+        (self.len == 0 || self.fill_u64(0, &mut v)).then_some(v)
+    }
+
     fn bits_equal_slice(&self, other: &[f64]) -> bool {
-        if other.len() != self.len {
+        if other.len() != self.len || self.is_u64() {
             return false;
         }
         let mut same = true;
         self.for_each_block(|start, b| same &= b.iter().zip(&other[start..]).all(|(x, y)| x.to_bits() == y.to_bits()));
         same
+    }
+
+    fn equal_u64_slice(&self, other: &[u64]) -> bool {
+        other.len() == self.len && self.to_u64_vec().is_some_and(|v| v == other)
     }
 }
 
@@ -213,7 +279,11 @@ impl fmt::Debug for Produced {
 
 impl PartialEq for Produced {
     fn eq(&self, other: &Self) -> bool {
-        self.len == other.len && self.bits_equal_slice(&other.to_vec())
+        match (self.to_u64_vec(), other.to_u64_vec()) {
+            (Some(a), Some(b)) => a == b,
+            (None, None) => self.len == other.len && self.bits_equal_slice(&other.to_vec()),
+            _ => false,
+        }
     }
 }
 
@@ -242,6 +312,7 @@ impl DataBuf {
     /// Element type name as used in listings and in the h5py check (numpy spelling).
     pub fn type_name(&self) -> &'static str {
         match self {
+            DataBuf::Produced(p) if p.is_u64() => "uint64",
             DataBuf::F64(_) | DataBuf::Produced(_) => "float64",
             DataBuf::F32(_) => "float32",
             DataBuf::I64(_) => "int64",
@@ -280,6 +351,7 @@ impl DataBuf {
                 a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits())
             }
             (DataBuf::Produced(p), DataBuf::F64(v)) | (DataBuf::F64(v), DataBuf::Produced(p)) => p.bits_equal_slice(v),
+            (DataBuf::Produced(p), DataBuf::U64(v)) | (DataBuf::U64(v), DataBuf::Produced(p)) => p.equal_u64_slice(v),
             (DataBuf::Produced(p), DataBuf::Produced(q)) => p.len() == q.len() && p.bits_equal_slice(&q.to_vec()),
             _ => self == other,
         }

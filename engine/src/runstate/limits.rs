@@ -99,9 +99,9 @@ fn bins_of(kind: &ScoreKind, geometry_voxels: u64, layers: u64) -> u64 {
     }
 }
 
-/// Bytes per voxel dose bin while a shard file is written: its raw 128-bit sums are assembled
-/// in memory (two u128 and four u64 arrays).
-pub const SHARD_BYTES_PER_VOXEL_BIN: u64 = 64;
+/// Extra disk bytes per bin of a shard file: the raw 128-bit sums as four u64 words (written
+/// block by block from the tally, so they take no extra memory).
+pub const SHARD_DISK_BYTES_PER_BIN: u64 = 32;
 
 /// The estimate for `deck` run on `threads` threads.
 pub fn estimate(deck: &ResolvedDeck, threads: usize) -> Estimate {
@@ -123,10 +123,15 @@ pub fn estimate_with(deck: &ResolvedDeck, threads: usize, sharded: bool) -> Esti
     let copies = threads as u64 + 2;
     let memory_bytes = BASE_BYTES
         .saturating_add(dense.saturating_mul(BYTES_PER_BIN).saturating_mul(copies))
-        .saturating_add(shared.saturating_mul(SHARED_BYTES_PER_BIN + if sharded { SHARD_BYTES_PER_VOXEL_BIN } else { 0 }))
+        .saturating_add(shared.saturating_mul(SHARED_BYTES_PER_BIN))
         .saturating_add(voxels.saturating_mul(BYTES_PER_GEOMETRY_VOXEL));
-    // Result: value and σ per dense bin, five f64 per voxel dose bin; checkpoint: 32 B per bin.
-    let disk_bytes = dense.saturating_mul(16 + 32).saturating_add(shared.saturating_mul(40 + 32)).saturating_add(1 << 20);
+    // Result: value and σ per dense bin, five f64 per voxel dose bin; checkpoint: 32 B per bin;
+    // a shard file also its raw words.
+    let disk_bytes = dense
+        .saturating_mul(16 + 32)
+        .saturating_add(shared.saturating_mul(40 + 32))
+        .saturating_add(if sharded { bins.saturating_mul(SHARD_DISK_BYTES_PER_BIN) } else { 0 })
+        .saturating_add(1 << 20);
     Estimate { bins, geometry_voxels: voxels, memory_bytes, disk_bytes }
 }
 

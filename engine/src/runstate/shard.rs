@@ -20,7 +20,7 @@
 //!   128-bit fixed-point sum and sum of squares.
 
 use super::{describe_chunks, Identity, ShardSpec};
-use crate::output::{AttrValue, DataBuf, Dataset, Group, ResultFile};
+use crate::output::{AttrValue, DataBuf, Dataset, Group, Produced, ResultFile};
 use crate::transport::{Problem, RunResult};
 use std::path::{Path, PathBuf};
 
@@ -52,13 +52,24 @@ pub fn add_shard_state(file: &mut ResultFile, identity: &Identity, shard: ShardS
     g.set_attr("assignment", "chunk i belongs to shard i mod shard_count");
     g.add_dataset(u64s("chunks", result.chunks.clone()));
     for (i, s) in result.scorers.iter().enumerate() {
-        let (sum, sum2) = s.tally().raw();
+        // The four word arrays are produced block by block from the tally while the file is
+        // written (no copy of a large grid's sums).
+        let raw = s.tally().raw_source();
+        let n = raw.len();
         let mut t = Group::new(&format!("tally_{i}"));
         t.set_attr("score", score_names.get(i).map(String::as_str).unwrap_or(""));
-        t.add_dataset(u64s("sum_lo", sum.iter().map(|v| *v as u64).collect()));
-        t.add_dataset(u64s("sum_hi", sum.iter().map(|v| (*v >> 64) as u64).collect()));
-        t.add_dataset(u64s("sum2_lo", sum2.iter().map(|v| *v as u64).collect()));
-        t.add_dataset(u64s("sum2_hi", sum2.iter().map(|v| (*v >> 64) as u64).collect()));
+        let words = |name: &str, word: fn((u128, u128)) -> u64| {
+            let raw = raw.clone();
+            Dataset::new(name, &[n], DataBuf::Produced(Produced::new_u64(n, move |start, out| {
+                for (k, o) in out.iter_mut().enumerate() {
+                    *o = word(raw.get(start + k));
+                }
+            })), "1")
+        };
+        t.add_dataset(words("sum_lo", |(a, _)| a as u64));
+        t.add_dataset(words("sum_hi", |(a, _)| (a >> 64) as u64));
+        t.add_dataset(words("sum2_lo", |(_, b)| b as u64));
+        t.add_dataset(words("sum2_hi", |(_, b)| (b >> 64) as u64));
         g.add_group(t);
     }
     file.add_group(g);
@@ -75,10 +86,57 @@ pub struct ShardFile {
     pub shard: ShardSpec,
     /// Chunks it completed.
     pub chunks: Vec<u64>,
-    /// Raw tally sums, deck order.
-    pub tallies: Vec<(Vec<u128>, Vec<u128>)>,
+    /// Raw tally sums, deck order (read from the file block by block).
+    pub tallies: Vec<ShardTally>,
     /// The whole file (root attributes are reused by the merge).
     pub file: ResultFile,
+}
+
+/// The raw sums of one score in a shard file: its four word arrays, held lazily for large
+/// grids (see `output::read`).
+#[derive(Debug, Clone)]
+pub struct ShardTally {
+    words: [DataBuf; 4],
+}
+
+impl ShardTally {
+    /// Number of bins.
+    pub fn len(&self) -> usize {
+        self.words[0].len()
+    }
+
+    /// True without bins.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Calls `f(start, sums, sums_of_squares)` for consecutive blocks of the raw 128-bit sums.
+    pub fn for_each_block(&self, mut f: impl FnMut(usize, &[u128], &[u128])) {
+        let n = self.len();
+        let block = Produced::BLOCK.min(n.max(1));
+        let mut w = [vec![0u64; block], vec![0u64; block], vec![0u64; block], vec![0u64; block]];
+        let (mut a, mut b) = (vec![0u128; block], vec![0u128; block]);
+        let mut start = 0;
+        while start < n {
+            let k = block.min(n - start);
+            for (d, buf) in self.words.iter().zip(w.iter_mut()) {
+                match d {
+                    DataBuf::U64(v) => buf[..k].copy_from_slice(&v[start..start + k]),
+                    DataBuf::Produced(p) => {
+                        let ok = p.fill_u64(start, &mut buf[..k]);
+                        debug_assert!(ok, "checked when read");
+                    }
+                    _ => unreachable!("checked when read"),
+                }
+            }
+            for j in 0..k {
+                a[j] = (w[0][j] as u128) | ((w[1][j] as u128) << 64);
+                b[j] = (w[2][j] as u128) | ((w[3][j] as u128) << 64);
+            }
+            f(start, &a[..k], &b[..k]);
+            start += k;
+        }
+    }
 }
 
 /// Why shards cannot be merged.
@@ -145,6 +203,16 @@ fn attr_u64(g: &Group, name: &str, path: &Path) -> Result<u64, MergeError> {
 fn data_u64(g: &Group, name: &str, path: &Path) -> Result<Vec<u64>, MergeError> {
     match g.dataset(name).map(|d| &d.data) {
         Some(DataBuf::U64(v)) => Ok(v.clone()),
+        Some(DataBuf::Produced(p)) if p.is_u64() => Ok(p.to_u64_vec().unwrap_or_default()),
+        _ => Err(MergeError::NotShard { path: path.into(), what: format!("dataset {}/{name} missing or not u64", g.name) }),
+    }
+}
+
+/// A u64 word array of a shard tally, as read (in memory or lazy).
+fn words_u64(g: &Group, name: &str, path: &Path) -> Result<DataBuf, MergeError> {
+    match g.dataset(name).map(|d| &d.data) {
+        Some(d @ DataBuf::U64(_)) => Ok(d.clone()),
+        Some(d @ DataBuf::Produced(p)) if p.is_u64() => Ok(d.clone()),
         _ => Err(MergeError::NotShard { path: path.into(), what: format!("dataset {}/{name} missing or not u64", g.name) }),
     }
 }
@@ -167,15 +235,11 @@ impl ShardFile {
         let mut tallies = Vec::new();
         for i in 0.. {
             let Some(t) = g.group(&format!("tally_{i}")) else { break };
-            let join = |lo: Vec<u64>, hi: Vec<u64>| -> Result<Vec<u128>, MergeError> {
-                if lo.len() != hi.len() {
-                    return Err(MergeError::NotShard { path: path.into(), what: format!("tally_{i}: low and high words differ in length") });
-                }
-                Ok(lo.iter().zip(&hi).map(|(l, h)| (*l as u128) | ((*h as u128) << 64)).collect())
-            };
-            let sum = join(data_u64(t, "sum_lo", path)?, data_u64(t, "sum_hi", path)?)?;
-            let sum2 = join(data_u64(t, "sum2_lo", path)?, data_u64(t, "sum2_hi", path)?)?;
-            tallies.push((sum, sum2));
+            let words = [words_u64(t, "sum_lo", path)?, words_u64(t, "sum_hi", path)?, words_u64(t, "sum2_lo", path)?, words_u64(t, "sum2_hi", path)?];
+            if words.iter().any(|w| w.len() != words[0].len()) {
+                return Err(MergeError::NotShard { path: path.into(), what: format!("tally_{i}: its word arrays differ in length") });
+            }
+            tallies.push(ShardTally { words });
         }
         Ok(ShardFile { path: path.into(), identity, shard, chunks, tallies, file })
     }
@@ -236,20 +300,24 @@ pub fn merge_results(problem: &Problem, shards: &[ShardFile]) -> Result<RunResul
         if s.tallies.len() != acc.scorers.len() {
             return Err(MergeError::NotShard { path: s.path.clone(), what: format!("{} tallies, the deck has {} scores", s.tallies.len(), acc.scorers.len()) });
         }
-        let mut part = RunResult::empty(problem);
-        for (i, (sc, (sum, sum2))) in part.scorers.iter_mut().zip(&s.tallies).enumerate() {
-            if sc.tally().len() != sum.len() || sum.len() != sum2.len() {
-                return Err(MergeError::NotShard { path: s.path.clone(), what: format!("tally_{i} has {} bins, the deck gives {}", sum.len(), sc.tally().len()) });
+        for (i, (sc, t)) in acc.scorers.iter().zip(&s.tallies).enumerate() {
+            if sc.tally().len() != t.len() {
+                return Err(MergeError::NotShard { path: s.path.clone(), what: format!("tally_{i} has {} bins, the deck gives {}", t.len(), sc.tally().len()) });
             }
-            sc.tally_mut().load_raw(sum, sum2);
         }
-        part.histories = s.chunks.iter().map(|&c| {
+        // Block by block into the accumulating tallies: integer sums, so the order of shards
+        // and blocks does not change a bit, and no shard's sums are held whole.
+        for (sc, t) in acc.scorers.iter_mut().zip(&s.tallies) {
+            let tally = sc.tally_mut();
+            t.for_each_block(|start, a, b| tally.add_raw_at(start, a, b));
+        }
+        acc.histories += s.chunks.iter().map(|&c| {
             let r = crate::rng::chunk_range(c, s.identity.chunk_histories, s.identity.histories);
             r.end - r.start
-        }).sum();
-        part.chunks = s.chunks.clone();
-        part.wall_time_s = s.file.attr("wall_time_s").and_then(AttrValue::as_f64).unwrap_or(0.0);
-        acc.merge(&part);
+        }).sum::<u64>();
+        acc.chunks.extend_from_slice(&s.chunks);
+        acc.wall_time_s += s.file.attr("wall_time_s").and_then(AttrValue::as_f64).unwrap_or(0.0);
     }
+    acc.chunks.sort_unstable();
     Ok(acc)
 }

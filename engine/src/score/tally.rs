@@ -446,6 +446,58 @@ impl Tally {
     }
 }
 
+/// The raw sums of a tally (format of [`Tally::raw`]), readable bin by bin without copying a
+/// shared store (see [`Tally::raw_source`]); cheap to clone.
+#[derive(Debug, Clone)]
+pub struct RawSource {
+    store: RawStore,
+}
+
+#[derive(Debug, Clone)]
+enum RawStore {
+    Shared(Arc<SharedSums>),
+    Dense(Arc<Vec<[u128; 2]>>),
+}
+
+impl RawSource {
+    /// Number of bins.
+    pub fn len(&self) -> usize {
+        match &self.store {
+            RawStore::Shared(s) => s.bins,
+            RawStore::Dense(v) => v.len(),
+        }
+    }
+
+    /// True without bins.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// (Σx, Σx²) of bin `i`: the same values as [`Tally::raw_bin`].
+    #[inline]
+    pub fn get(&self, i: usize) -> (u128, u128) {
+        match &self.store {
+            RawStore::Shared(sums) => {
+                let up = |v: u64, shift: i32| if v == u64::MAX { u128::MAX } else { (v as u128) << shift };
+                let (a, b) = sums.words(i);
+                (up(a, FRACTION_BITS - SHARED_SUM_BITS), up(b, FRACTION_BITS - SHARED_SUM2_BITS))
+            }
+            RawStore::Dense(v) => (v[i][0], v[i][1]),
+        }
+    }
+}
+
+impl Tally {
+    /// The raw sums for reading elsewhere (a shard file written block by block): a shared
+    /// store is shared, not copied; a dense one (small) is copied once.
+    pub fn raw_source(&self) -> RawSource {
+        match &self.store {
+            Store::Shared { sums, .. } => RawSource { store: RawStore::Shared(Arc::clone(sums)) },
+            Store::Dense { sums, .. } => RawSource { store: RawStore::Dense(Arc::new(sums.clone())) },
+        }
+    }
+}
+
 /// Mean and standard error of one bin from its sums over `histories` histories.
 #[inline]
 fn bin_stats(s: f64, s2: f64, histories: u64) -> (f64, f64) {

@@ -1,0 +1,602 @@
+//! Bricks of 8 × 8 × 8 voxels: a small table of the grid's media for fast lookups, and the
+//! regions of constant local majorant that delta (Woodcock) tracking walks through.
+//!
+//! Each brick is *uniform* (all its voxels share one material and density) or *mixed*. A mixed
+//! brick belongs to a **majorant class**: a list of (material, largest density) pairs covering
+//! every voxel of every brick of the class, so `max over the list of (μ/ρ)(E) · ρ` bounds μ of
+//! every such voxel at every energy. Classes are keyed by the brick's exact list; when a grid has
+//! more than [`MAX_CLASSES`] distinct lists (per-voxel densities), bricks are grouped by their
+//! set of materials alone (each at the group's largest density), and any set beyond the limit
+//! falls back to the grid-wide majorant ([`BrickMedium::Global`]).
+//!
+//! For tracking, each brick also stores its **reach** in each of the eight octants of direction:
+//! `r` such that the box of (r+1)³ bricks with this brick at its corner, extending forward
+//! along that octant's signs (clipped to the grid), holds one medium entry (uniform medium or
+//! class) only. A ray is walked box by box ([`BrickWalk`]): entering a brick, it takes the box of
+//! its direction's octant; over each such stretch the majorant is constant, and a tentative
+//! collision is attributed to a voxel of the stretch's box (its coordinates are clamped into the
+//! box, so rounding at a face never picks a voxel the majorant does not cover).
+
+use crate::{Vec3, VoxelGrid};
+use std::collections::HashMap;
+
+/// Voxels per brick edge: 2^`BRICK_SHIFT`.
+pub(crate) const BRICK_SHIFT: u32 = 3;
+/// Material index marking a mixed brick.
+pub(crate) const MIXED: u16 = u16::MAX;
+/// Class index of a mixed brick covered by the grid-wide majorant.
+const GLOBAL: u16 = u16::MAX;
+/// Most majorant classes of a grid.
+pub const MAX_CLASSES: usize = 64;
+/// Largest reach stored (bricks).
+const MAX_REACH: u8 = u8::MAX;
+
+/// One brick's entry.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub(crate) struct Brick {
+    /// Material of a uniform brick, or [`MIXED`].
+    pub material: u16,
+    /// Uniform: slot of the density in [`BrickMap::densities`]; mixed: majorant class or [`GLOBAL`].
+    pub slot: u16,
+}
+
+/// The medium over a stretch of a brick walk.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum BrickMedium {
+    /// Every voxel of the stretch has this material index and density (g/cm³).
+    Uniform(u16, f64),
+    /// Voxels differ; the majorant class (an index into [`VoxelGrid::majorant_classes`]) covers them.
+    Class(u16),
+    /// Voxels differ; only the grid-wide majorant covers them.
+    Global,
+}
+
+/// The bricks of a grid (built on first use).
+#[derive(Clone, Debug)]
+pub(crate) struct BrickMap {
+    pub dims: [usize; 3],
+    pub cells: Vec<Brick>,
+    /// Reach per brick and direction octant (bit a of the octant set for a negative
+    /// component along axis a; see the module documentation).
+    pub reach: Vec<[u8; 8]>,
+    pub densities: Vec<f64>,
+    /// Majorant classes: (material, largest density g/cm³) lists.
+    pub classes: Vec<Vec<(u16, f64)>>,
+}
+
+impl BrickMap {
+    pub fn build(g: &VoxelGrid) -> BrickMap {
+        let [nx, ny, nz] = g.layout().dims;
+        let b = 1usize << BRICK_SHIFT;
+        let dims = [nx.div_ceil(b), ny.div_ceil(b), nz.div_ceil(b)];
+        let nb = dims[0] * dims[1] * dims[2];
+        let mut first: Vec<Option<(u16, f64)>> = vec![None; nb];
+        let mut mixed = vec![false; nb];
+        for iz in 0..nz {
+            for iy in 0..ny {
+                let row = nx * (iy + ny * iz);
+                let brow = dims[0] * ((iy >> BRICK_SHIFT) + dims[1] * (iz >> BRICK_SHIFT));
+                for ix in 0..nx {
+                    let k = brow + (ix >> BRICK_SHIFT);
+                    if mixed[k] {
+                        continue;
+                    }
+                    let (m, rho) = g.voxel_medium(row + ix);
+                    match first[k] {
+                        None => first[k] = Some((m, rho)),
+                        Some((m0, r0)) => mixed[k] = m0 != m || r0.to_bits() != rho.to_bits(),
+                    }
+                }
+            }
+        }
+        let mut densities: Vec<f64> = Vec::new();
+        let mut cells: Vec<Brick> = first
+            .iter()
+            .zip(&mixed)
+            .map(|(f, &x)| match (f, x) {
+                (Some((m, rho)), false) => {
+                    let slot = match densities.iter().position(|d| d.to_bits() == rho.to_bits()) {
+                        Some(j) => j,
+                        None => {
+                            densities.push(*rho);
+                            densities.len() - 1
+                        }
+                    };
+                    if slot < u16::MAX as usize && *m != MIXED {
+                        Brick { material: *m, slot: slot as u16 }
+                    } else {
+                        Brick { material: MIXED, slot: GLOBAL }
+                    }
+                }
+                _ => Brick { material: MIXED, slot: GLOBAL },
+            })
+            .collect();
+        let classes = assign_classes(g, dims, &mut cells);
+        let reach = reach(dims, &cells);
+        BrickMap { dims, cells, reach, densities, classes }
+    }
+
+    #[inline(always)]
+    pub fn index(&self, b: [usize; 3]) -> usize {
+        b[0] + self.dims[0] * (b[1] + self.dims[1] * b[2])
+    }
+
+    #[inline(always)]
+    fn medium(&self, c: Brick) -> BrickMedium {
+        if c.material != MIXED {
+            BrickMedium::Uniform(c.material, self.densities[c.slot as usize])
+        } else if c.slot == GLOBAL {
+            BrickMedium::Global
+        } else {
+            BrickMedium::Class(c.slot)
+        }
+    }
+}
+
+/// The (material, largest density) list of each brick that is not uniform, or `None` when one
+/// of its materials has an index ≥ 64 (those bricks use the grid-wide majorant).
+fn mixed_lists(g: &VoxelGrid, dims: [usize; 3], cells: &[Brick]) -> Vec<Option<Vec<(u16, f64)>>> {
+    let [nx, ny, nz] = g.layout().dims;
+    let mut out = vec![None; cells.len()];
+    for bz in 0..dims[2] {
+        for by in 0..dims[1] {
+            for bx in 0..dims[0] {
+                let k = bx + dims[0] * (by + dims[1] * bz);
+                if cells[k].material != MIXED {
+                    continue;
+                }
+                let mut mask = 0u64;
+                let mut max = [0.0f64; 64];
+                let mut wide = false;
+                let lo = [bx << BRICK_SHIFT, by << BRICK_SHIFT, bz << BRICK_SHIFT];
+                let hi = [(lo[0] + 8).min(nx), (lo[1] + 8).min(ny), (lo[2] + 8).min(nz)];
+                for iz in lo[2]..hi[2] {
+                    for iy in lo[1]..hi[1] {
+                        for ix in lo[0]..hi[0] {
+                            let (m, rho) = g.voxel_medium(ix + nx * (iy + ny * iz));
+                            if m >= 64 {
+                                wide = true;
+                                continue;
+                            }
+                            if mask & (1 << m) == 0 || rho > max[m as usize] {
+                                max[m as usize] = rho;
+                            }
+                            mask |= 1 << m;
+                        }
+                    }
+                }
+                if !wide {
+                    out[k] = Some((0..64u16).filter(|&m| mask & (1 << m) != 0).map(|m| (m, max[m as usize])).collect());
+                }
+            }
+        }
+    }
+    out
+}
+
+/// Gives every mixed brick a majorant class (see the module documentation); returns the classes.
+fn assign_classes(g: &VoxelGrid, dims: [usize; 3], cells: &mut [Brick]) -> Vec<Vec<(u16, f64)>> {
+    let lists = mixed_lists(g, dims, cells);
+    // Exact lists first.
+    let mut ids: HashMap<Vec<(u16, u64)>, usize> = HashMap::new();
+    let mut classes: Vec<Vec<(u16, f64)>> = Vec::new();
+    for l in lists.iter().flatten() {
+        let key: Vec<(u16, u64)> = l.iter().map(|&(m, r)| (m, r.to_bits())).collect();
+        if !ids.contains_key(&key) {
+            ids.insert(key, classes.len());
+            classes.push(l.clone());
+        }
+    }
+    if classes.len() <= MAX_CLASSES {
+        for (c, l) in cells.iter_mut().zip(&lists) {
+            if let Some(l) = l {
+                let key: Vec<(u16, u64)> = l.iter().map(|&(m, r)| (m, r.to_bits())).collect();
+                c.slot = ids[&key] as u16;
+            }
+        }
+        return classes;
+    }
+    // Too many: group by the set of materials, keeping the most common sets.
+    let mask_of = |l: &Vec<(u16, f64)>| l.iter().fold(0u64, |a, &(m, _)| a | (1 << m));
+    let mut count: HashMap<u64, (usize, usize)> = HashMap::new();
+    for (k, l) in lists.iter().enumerate() {
+        if let Some(l) = l {
+            let e = count.entry(mask_of(l)).or_insert((0, k));
+            e.0 += 1;
+        }
+    }
+    let mut sets: Vec<(u64, usize, usize)> = count.into_iter().map(|(m, (n, first))| (m, n, first)).collect();
+    sets.sort_by(|a, b| b.1.cmp(&a.1).then(a.2.cmp(&b.2)));
+    sets.truncate(MAX_CLASSES);
+    sets.sort_by_key(|s| s.2);
+    let class_of: HashMap<u64, usize> = sets.iter().enumerate().map(|(i, s)| (s.0, i)).collect();
+    let mut max = vec![[0.0f64; 64]; sets.len()];
+    for (c, l) in cells.iter_mut().zip(&lists) {
+        if let Some(l) = l {
+            if let Some(&i) = class_of.get(&mask_of(l)) {
+                c.slot = i as u16;
+                for &(m, r) in l {
+                    max[i][m as usize] = max[i][m as usize].max(r);
+                }
+            }
+        }
+    }
+    sets.iter()
+        .enumerate()
+        .map(|(i, s)| (0..64u16).filter(|&m| s.0 & (1 << m) != 0).map(|m| (m, max[i][m as usize])).collect())
+        .collect()
+}
+
+/// The reach of every brick in every octant (see the module documentation), by dynamic
+/// programming: a brick's box in an octant has size r + 1 = 1 + the smallest box size of its
+/// (up to 7) forward neighbours in that octant, if they all have its entry (else r = 0); the
+/// neighbours' boxes and the brick itself cover the larger box. Neighbours beyond the grid
+/// do not limit it (boxes are clipped to the grid).
+fn reach(dims: [usize; 3], cells: &[Brick]) -> Vec<[u8; 8]> {
+    let idx = |b: [usize; 3]| b[0] + dims[0] * (b[1] + dims[1] * b[2]);
+    let mut r = vec![[0u8; 8]; cells.len()];
+    for oct in 0..8usize {
+        let neg = [oct & 1 != 0, oct & 2 != 0, oct & 4 != 0];
+        // Visit bricks so that the forward neighbours come first.
+        let order = |a: usize, i: usize| if neg[a] { i } else { dims[a] - 1 - i };
+        for iz in 0..dims[2] {
+            for iy in 0..dims[1] {
+                for ix in 0..dims[0] {
+                    let b = [order(0, ix), order(1, iy), order(2, iz)];
+                    let k = idx(b);
+                    let mut least = MAX_REACH;
+                    let mut same = true;
+                    for e in 1..8usize {
+                        let mut n = b;
+                        let mut inside = true;
+                        for a in 0..3 {
+                            if e & (1 << a) != 0 {
+                                if neg[a] {
+                                    inside &= n[a] > 0;
+                                    n[a] = n[a].wrapping_sub(1);
+                                } else {
+                                    n[a] += 1;
+                                    inside &= n[a] < dims[a];
+                                }
+                            }
+                        }
+                        if inside {
+                            let j = idx(n);
+                            same &= cells[j] == cells[k];
+                            least = least.min(r[j][oct]);
+                        }
+                    }
+                    r[k][oct] = if same { least.saturating_add(1) } else { 0 };
+                }
+            }
+        }
+    }
+    r
+}
+
+/// How a brick walk ended: through the grid face on `axis` (0, 1, 2) at plane `plane_cm`, at
+/// distance `distance_cm` along the ray.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct GridExit {
+    /// Distance along the ray (cm).
+    pub distance_cm: f64,
+    /// Axis of the face.
+    pub axis: usize,
+    /// The face's coordinate (cm).
+    pub plane_cm: f64,
+}
+
+/// A walk along the ray `origin + t · dir` through a grid's stretches of constant medium entry
+/// (see the module documentation). Allocation-free; from [`VoxelGrid::brick_walk`].
+#[derive(Clone, Debug)]
+pub struct BrickWalk<'a> {
+    grid: &'a VoxelGrid,
+    map: &'a BrickMap,
+    origin: Vec3,
+    dir: Vec3,
+    /// Octant of `dir` (bit a set for a negative component along axis a).
+    octant: usize,
+    /// The origin in voxel units, (origin − grid origin) / voxel size, per axis.
+    origin_vox: [f64; 3],
+    /// Voxel size / dir per axis: distance along the ray per voxel (infinite for a zero
+    /// component).
+    per_voxel_cm: [f64; 3],
+    /// Start and end of the current stretch (cm along the ray).
+    start_cm: f64,
+    end_cm: f64,
+    exit_axis: usize,
+    /// The current cube in voxels, inclusive, per axis.
+    vlo: [usize; 3],
+    vhi: [usize; 3],
+    medium: BrickMedium,
+}
+
+impl<'a> BrickWalk<'a> {
+    pub(crate) fn new(grid: &'a VoxelGrid, map: &'a BrickMap, origin: Vec3, dir: Vec3) -> Self {
+        let dims = grid.layout().dims;
+        let mut cell = [0usize; 3];
+        for (a, c) in cell.iter_mut().enumerate() {
+            *c = grid.floor_cell(a, origin.axis(a), 0, dims[a] - 1);
+        }
+        let mut w = BrickWalk {
+            grid,
+            map,
+            origin,
+            dir,
+            octant: (dir.x < 0.0) as usize | ((dir.y < 0.0) as usize) << 1 | ((dir.z < 0.0) as usize) << 2,
+            origin_vox: [0.0; 3],
+            per_voxel_cm: [0.0; 3],
+            start_cm: 0.0,
+            end_cm: 0.0,
+            exit_axis: 0,
+            vlo: [0; 3],
+            vhi: [0; 3],
+            medium: BrickMedium::Global,
+        };
+        let layout = grid.layout();
+        for a in 0..3 {
+            let size = layout.voxel_size_cm.axis(a);
+            let da = dir.axis(a);
+            if da != 0.0 {
+                w.origin_vox[a] = (origin.axis(a) - layout.origin_cm.axis(a)) / size;
+                w.per_voxel_cm[a] = size / da.abs();
+            } else {
+                // The ray never reaches a plane of this axis: (plane − (−∞)) · ∞ = ∞.
+                w.origin_vox[a] = f64::NEG_INFINITY;
+                w.per_voxel_cm[a] = f64::INFINITY;
+            }
+        }
+        w.enter([cell[0] >> BRICK_SHIFT, cell[1] >> BRICK_SHIFT, cell[2] >> BRICK_SHIFT]);
+        w
+    }
+
+    /// Makes the box of brick `b` in the walk's octant the current stretch, starting at
+    /// `start_cm`. The stretch ends where the ray reaches the box's forward plane on some axis
+    /// (distances from plane indices in voxel units, so no error accumulates along the ray).
+    #[inline(always)]
+    fn enter(&mut self, b: [usize; 3]) {
+        let k = self.map.index(b);
+        let r = self.map.reach[k][self.octant] as usize;
+        self.medium = self.map.medium(self.map.cells[k]);
+        let dims = &self.grid.layout().dims;
+        let mut end = f64::INFINITY;
+        let mut axis = 0;
+        for a in 0..3 {
+            let t = if self.octant & (1 << a) == 0 {
+                let hi = (b[a] + r).min(self.map.dims[a] - 1);
+                self.vlo[a] = b[a] << BRICK_SHIFT;
+                self.vhi[a] = (((hi + 1) << BRICK_SHIFT).min(dims[a])) - 1;
+                ((self.vhi[a] + 1) as f64 - self.origin_vox[a]) * self.per_voxel_cm[a]
+            } else {
+                let lo = b[a].saturating_sub(r);
+                self.vlo[a] = lo << BRICK_SHIFT;
+                self.vhi[a] = (((b[a] + 1) << BRICK_SHIFT).min(dims[a])) - 1;
+                (self.origin_vox[a] - self.vlo[a] as f64) * self.per_voxel_cm[a]
+            };
+            if t < end {
+                end = t;
+                axis = a;
+            }
+        }
+        self.end_cm = end.max(self.start_cm);
+        self.exit_axis = axis;
+    }
+
+    /// Where the current stretch starts and ends along the ray (cm), and its medium.
+    #[inline(always)]
+    pub fn stretch(&self) -> (f64, f64, BrickMedium) {
+        (self.start_cm, self.end_cm, self.medium)
+    }
+
+    /// Restarts the current stretch at `t_cm` (after a virtual collision there).
+    #[inline(always)]
+    pub fn resume_at(&mut self, t_cm: f64) {
+        self.start_cm = t_cm.min(self.end_cm);
+    }
+
+    /// The point at distance `t_cm` along the ray.
+    #[inline(always)]
+    pub fn point(&self, t_cm: f64) -> Vec3 {
+        self.origin + self.dir * t_cm
+    }
+
+    /// The flat index of the voxel of the current stretch at distance `t_cm` (within the
+    /// stretch): the voxel containing the point, its coordinates clamped into the stretch's cube.
+    #[inline(always)]
+    pub fn voxel_at(&self, t_cm: f64) -> usize {
+        let q = self.point(t_cm);
+        let d = self.grid.layout().dims;
+        let ix = self.grid.floor_cell(0, q.x, self.vlo[0], self.vhi[0]);
+        let iy = self.grid.floor_cell(1, q.y, self.vlo[1], self.vhi[1]);
+        let iz = self.grid.floor_cell(2, q.z, self.vlo[2], self.vhi[2]);
+        ix + d[0] * (iy + d[1] * iz)
+    }
+
+    /// Moves to the next stretch; `Err` with the exit when the ray leaves the grid instead.
+    #[inline(always)]
+    pub fn advance(&mut self) -> Result<(), GridExit> {
+        let a = self.exit_axis;
+        let layout = self.grid.layout();
+        let t = self.end_cm;
+        let mut b = [0usize; 3];
+        if self.octant & (1 << a) == 0 {
+            let k = self.vhi[a] + 1;
+            if k >= layout.dims[a] {
+                return Err(GridExit { distance_cm: t, axis: a, plane_cm: layout.plane_cm(a, k) });
+            }
+            b[a] = k >> BRICK_SHIFT;
+        } else {
+            if self.vlo[a] == 0 {
+                return Err(GridExit { distance_cm: t, axis: a, plane_cm: layout.plane_cm(a, 0) });
+            }
+            b[a] = (self.vlo[a] - 1) >> BRICK_SHIFT;
+        }
+        let q = self.point(t);
+        for o in [(a + 1) % 3, (a + 2) % 3] {
+            b[o] = self.grid.floor_cell(o, q.axis(o), self.vlo[o], self.vhi[o]) >> BRICK_SHIFT;
+        }
+        self.start_cm = t;
+        self.enter(b);
+        Ok(())
+    }
+}
+
+impl VoxelGrid {
+    /// A walk along `origin + t · dir` (unit `dir`; `origin` in the closed grid) through the
+    /// stretches of constant medium entry used for delta tracking with local majorants.
+    #[inline]
+    pub fn brick_walk(&self, origin: Vec3, dir: Vec3) -> BrickWalk<'_> {
+        BrickWalk::new(self, self.brick_map(), origin, dir)
+    }
+
+    /// The majorant classes of the grid's mixed bricks: (material index, largest density g/cm³)
+    /// lists; see [`BrickMedium::Class`].
+    pub fn majorant_classes(&self) -> &[Vec<(u16, f64)>] {
+        &self.brick_map().classes
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::{GridLayout, MaterialIndices};
+
+    /// Every voxel of every brick is covered by its brick's entry: a uniform brick's medium is
+    /// each voxel's, a class lists each voxel's material at a density at least the voxel's; and
+    /// the box of every brick in every octant holds only its own entry, and is as large as that allows.
+    #[test]
+    fn classes_and_reach_cover_their_voxels() {
+        let dims = [69, 40, 61];
+        let n: usize = dims.iter().product();
+        let layout = GridLayout { dims, voxel_size_cm: Vec3::new(0.3, 0.5, 0.2), origin_cm: Vec3::new(-1.0, 0.0, 1.0) };
+        let ijk = |i: usize| [i % dims[0], (i / dims[0]) % dims[1], i / (dims[0] * dims[1])];
+        let mats: Vec<u8> = (0..n)
+            .map(|i| {
+                let [x, y, z] = ijk(i);
+                if (x as i64 - 34).pow(2) + (z as i64 - 30).pow(2) < 26 * 26 { 1 } else if y > 30 && x < 12 { 2 } else { 0 }
+            })
+            .collect();
+        let dens: Vec<f32> = (0..n).map(|i| 1.0 + (ijk(i)[0] % 5) as f32 * 0.1 * (ijk(i)[2] > 50) as u8 as f32).collect();
+        for density in [None, Some(dens)] {
+            let mut g = VoxelGrid::new(layout, MaterialIndices::U8(mats.clone()), density, vec!["a".into(), "b".into(), "c".into()]).unwrap();
+            g.set_nominal_densities(&[1.0, 2.0, 0.3]).unwrap();
+            let map = g.brick_map();
+            let mut kinds = [0usize; 2];
+            for i in 0..n {
+                let c = ijk(i);
+                let b = [c[0] >> 3, c[1] >> 3, c[2] >> 3];
+                let (m, rho) = g.voxel_medium(i);
+                match map.medium(map.cells[map.index(b)]) {
+                    BrickMedium::Uniform(bm, br) => {
+                        kinds[0] += 1;
+                        assert!(bm == m && br.to_bits() == rho.to_bits(), "voxel {c:?}");
+                    }
+                    BrickMedium::Class(k) => {
+                        kinds[1] += 1;
+                        assert!(map.classes[k as usize].iter().any(|&(cm, cr)| cm == m && cr >= rho), "voxel {c:?}");
+                    }
+                    BrickMedium::Global => panic!("three materials need no fallback"),
+                }
+            }
+            assert!(kinds[0] > 0 && kinds[1] > 0, "both kinds of brick are exercised: {kinds:?}");
+            let bd = map.dims;
+            let mut reached = 0;
+            for bz in 0..bd[2] {
+                for by in 0..bd[1] {
+                    for bx in 0..bd[0] {
+                        let b = [bx, by, bz];
+                        let k = map.index(b);
+                        for oct in 0..8 {
+                            let r = map.reach[k][oct] as usize;
+                            reached += (r > 0) as usize;
+                            // The box in this octant, and the box one larger.
+                            let range = |a: usize, r: usize| if oct & (1 << a) == 0 { b[a]..(b[a] + r + 1).min(bd[a]) } else { b[a].saturating_sub(r)..b[a] + 1 };
+                            let mut other = false;
+                            for z in range(2, r + 1) {
+                                for y in range(1, r + 1) {
+                                    for x in range(0, r + 1) {
+                                        let inner = range(0, r).contains(&x) && range(1, r).contains(&y) && range(2, r).contains(&z);
+                                        let differs = map.cells[map.index([x, y, z])] != map.cells[k];
+                                        assert!(!(inner && differs), "brick {b:?} octant {oct} reach {r}");
+                                        other |= differs;
+                                    }
+                                }
+                            }
+                            // Not smaller than needed: the box one larger holds another entry,
+                            // unless it reaches no further brick or the reach is capped.
+                            let grows = (0..3).any(|a| range(a, r + 1).len() > range(a, r).len());
+                            assert!(other || !grows || r == MAX_REACH as usize, "brick {b:?} octant {oct}: reach {r} could be larger");
+                        }
+                    }
+                }
+            }
+            assert!(reached > 0, "some bricks reach beyond themselves");
+        }
+    }
+
+    /// A walk visits stretches in order, each voxel it reports lies in its stretch's medium, and
+    /// it leaves the grid where the box exit says.
+    #[test]
+    fn walk_covers_the_ray_to_the_grid_exit() {
+        let dims = [40, 33, 26];
+        let n: usize = dims.iter().product();
+        let layout = GridLayout { dims, voxel_size_cm: Vec3::new(0.25, 0.3, 0.4), origin_cm: Vec3::new(-5.0, -5.0, 0.0) };
+        let ijk = |i: usize| [i % dims[0], (i / dims[0]) % dims[1], i / (dims[0] * dims[1])];
+        let mats: Vec<u8> = (0..n).map(|i| { let [x, y, z] = ijk(i); ((x / 13 + y / 11 + z / 7) % 3) as u8 }).collect();
+        let mut g = VoxelGrid::new(layout, MaterialIndices::U8(mats), None, vec!["a".into(), "b".into(), "c".into()]).unwrap();
+        g.set_nominal_densities(&[1.0, 2.0, 0.3]).unwrap();
+        let b = g.bounds();
+        let mut state = 12345u64;
+        let mut uni = || {
+            state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (state >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for k in 0..2000 {
+            let p = Vec3::new(
+                b.min_cm.x + uni() * (b.max_cm.x - b.min_cm.x),
+                b.min_cm.y + uni() * (b.max_cm.y - b.min_cm.y),
+                b.min_cm.z + uni() * (b.max_cm.z - b.min_cm.z),
+            );
+            // Some directions along axes and diagonals, to hit planes, edges and corners.
+            let d = match k % 4 {
+                0 => Vec3::new(uni() - 0.5, uni() - 0.5, uni() - 0.5).normalised(),
+                1 => [Vec3::X, -Vec3::Y, Vec3::Z, -Vec3::X][k / 4 % 4],
+                2 => Vec3::new(1.0, 1.0, -1.0).normalised(),
+                _ => Vec3::new(-1.0, 0.0, 1.0).normalised(),
+            };
+            let (t_exit, _, _) = b.exit(p, d);
+            let mut w = g.brick_walk(p, d);
+            let mut last = 0.0;
+            let mut steps = 0;
+            let exit = loop {
+                let (s, e, medium) = w.stretch();
+                assert!(s == last && e >= s, "stretches in order: {s} {e} after {last}");
+                for f in [0.0, 0.5, 1.0] {
+                    let v = w.voxel_at(s + f * (e - s));
+                    let (m, rho) = g.voxel_medium(v);
+                    match medium {
+                        BrickMedium::Uniform(um, ur) => assert!(um == m && ur == rho),
+                        BrickMedium::Class(c) => assert!(g.majorant_classes()[c as usize].iter().any(|&(cm, cr)| cm == m && cr >= rho)),
+                        BrickMedium::Global => panic!("no fallback expected"),
+                    }
+                    // The voxel is the one containing the point, up to rounding on a face.
+                    let q = w.point(s + f * (e - s));
+                    let c = ijk(v);
+                    for a in 0..3 {
+                        let (lo, hi) = (layout.plane_cm(a, c[a]), layout.plane_cm(a, c[a] + 1));
+                        assert!(q.axis(a) >= lo - 1e-9 && q.axis(a) <= hi + 1e-9, "point {q:?} outside voxel {c:?}");
+                    }
+                }
+                last = e;
+                steps += 1;
+                assert!(steps < 1000, "walk does not end");
+                if let Err(x) = w.advance() {
+                    break x;
+                }
+            };
+            assert!((exit.distance_cm - t_exit).abs() < 1e-9, "exit {} vs {t_exit}", exit.distance_cm);
+            let face = if d.axis(exit.axis) > 0.0 { b.max_cm.axis(exit.axis) } else { b.min_cm.axis(exit.axis) };
+            assert_eq!(exit.plane_cm, face);
+        }
+    }
+}

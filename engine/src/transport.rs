@@ -426,12 +426,12 @@ impl Problem {
                 }
                 // A tentative collision in this stretch.
                 let s = (start + tau / mu_max).min(end);
-                let v = walk.voxel_at(s);
+                let (v, cell) = walk.voxel_at(s);
                 let m = match medium {
                     // The majorant is the medium's own μ: every tentative collision is real.
                     BrickMedium::Uniform(m, _) => m,
                     _ => {
-                        let (m, rho) = grid.voxel_medium(v);
+                        let (m, rho) = walk.voxel_medium(v, cell);
                         let mu = local.mu_rho(m, p.ln_kev, &self.materials) * rho;
                         if !(rng.uniform() * mu_max < mu) {
                             walk.resume_at(s);

@@ -62,6 +62,9 @@ pub(crate) struct BrickMap {
     pub densities: Vec<f64>,
     /// Majorant classes: (material, largest density g/cm³) lists.
     pub classes: Vec<Vec<(u16, f64)>>,
+    /// Without a per-voxel density array: each voxel's material, summarised (a voxel's medium
+    /// is then its material at the nominal density).
+    pub materials: Option<BrickTable>,
 }
 
 impl BrickMap {
@@ -113,7 +116,8 @@ impl BrickMap {
             .collect();
         let classes = assign_classes(g, dims, &mut cells);
         let reach = reach(dims, &cells);
-        BrickMap { dims, cells, reach, densities, classes }
+        let materials = g.densities().is_none().then(|| BrickTable::build(g.layout().dims, |v| g.material_indices().get(v)));
+        BrickMap { dims, cells, reach, densities, classes, materials }
     }
 
     #[inline(always)]
@@ -274,6 +278,110 @@ fn reach(dims: [usize; 3], cells: &[Brick]) -> Vec<[u8; 8]> {
     r
 }
 
+/// Marks "the voxels differ" in a [`BrickTable`]; a voxel whose value is this is never summarised.
+pub const VARIES: u16 = u16::MAX;
+/// Top-table entries with this bit point into the cell table.
+const SPLIT: u32 = 1 << 31;
+
+/// A u16 value per voxel (a material, a medium, a region label) summarised for fast reads: per
+/// 8 × 8 × 8 brick the value all its voxels share, and inside a brick whose voxels differ, per
+/// 2 × 2 × 2 cell the value its voxels share. The tables are small (4 bytes per brick, 128 per
+/// brick that varies) and stay in cache where the per-voxel array would miss at nearly every read.
+#[derive(Clone, Debug, PartialEq)]
+pub struct BrickTable {
+    dims: [usize; 2],
+    top: Vec<u32>,
+    cells: Vec<u16>,
+}
+
+impl BrickTable {
+    /// Summarises `value(flat voxel index)` over a grid of `voxel_dims` voxels (x fastest).
+    /// `value` is called in a deterministic order, up to twice per voxel.
+    pub fn build(voxel_dims: [usize; 3], mut value: impl FnMut(usize) -> u16) -> BrickTable {
+        let [nx, ny, nz] = voxel_dims;
+        let b = 1usize << BRICK_SHIFT;
+        let bd = [nx.div_ceil(b), ny.div_ceil(b), nz.div_ceil(b)];
+        let mut top = vec![VARIES as u32; bd[0] * bd[1] * bd[2]];
+        let mut seen = vec![false; top.len()];
+        let mut split = vec![false; top.len()];
+        for iz in 0..nz {
+            for iy in 0..ny {
+                let row = nx * (iy + ny * iz);
+                let brow = bd[0] * ((iy >> BRICK_SHIFT) + bd[1] * (iz >> BRICK_SHIFT));
+                for ix in 0..nx {
+                    let k = brow + (ix >> BRICK_SHIFT);
+                    if split[k] {
+                        continue;
+                    }
+                    let v = value(row + ix) as u32;
+                    if !seen[k] {
+                        seen[k] = true;
+                        top[k] = v;
+                    } else if top[k] != v {
+                        split[k] = true;
+                    }
+                }
+            }
+        }
+        let mut cells = Vec::new();
+        for bz in 0..bd[2] {
+            for by in 0..bd[1] {
+                for bx in 0..bd[0] {
+                    let k = bx + bd[0] * (by + bd[1] * bz);
+                    if !split[k] {
+                        continue;
+                    }
+                    let base = cells.len();
+                    top[k] = SPLIT | (base / 64) as u32;
+                    cells.resize(base + 64, VARIES);
+                    let mut seen = [false; 64];
+                    let mut varies = [false; 64];
+                    for iz in bz << BRICK_SHIFT..((bz + 1) << BRICK_SHIFT).min(nz) {
+                        for iy in by << BRICK_SHIFT..((by + 1) << BRICK_SHIFT).min(ny) {
+                            for ix in bx << BRICK_SHIFT..((bx + 1) << BRICK_SHIFT).min(nx) {
+                                let j = Self::cell_of([ix, iy, iz]);
+                                if varies[j] {
+                                    continue;
+                                }
+                                let v = value(ix + nx * (iy + ny * iz));
+                                if !seen[j] {
+                                    seen[j] = true;
+                                    cells[base + j] = v;
+                                } else if cells[base + j] != v {
+                                    varies[j] = true;
+                                    cells[base + j] = VARIES;
+                                }
+                            }
+                        }
+                    }
+                }
+            }
+        }
+        BrickTable { dims: [bd[0], bd[1]], top, cells }
+    }
+
+    /// Cell of voxel `c` inside its brick (0..64).
+    #[inline(always)]
+    fn cell_of(c: [usize; 3]) -> usize {
+        ((c[0] & 7) >> 1) | (((c[1] & 7) >> 1) << 2) | (((c[2] & 7) >> 1) << 4)
+    }
+
+    /// The value of voxel `c` when its brick or its 2 × 2 × 2 cell has one value, else `None`
+    /// (read the voxel itself).
+    #[inline(always)]
+    pub fn get(&self, c: [usize; 3]) -> Option<u16> {
+        let k = (c[0] >> BRICK_SHIFT) + self.dims[0] * ((c[1] >> BRICK_SHIFT) + self.dims[1] * (c[2] >> BRICK_SHIFT));
+        let t = self.top[k];
+        let v = if t & SPLIT == 0 { t as u16 } else { self.cells[(t & !SPLIT) as usize * 64 + Self::cell_of(c)] };
+        (v != VARIES).then_some(v)
+    }
+
+    /// Heap bytes held.
+    pub fn heap_bytes(&self) -> usize {
+        self.top.len() * 4 + self.cells.len() * 2
+    }
+}
+
 /// How a brick walk ended: through the grid face on `axis` (0, 1, 2) at plane `plane_cm`, at
 /// distance `distance_cm` along the ray.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -400,16 +508,28 @@ impl<'a> BrickWalk<'a> {
         self.origin + self.dir * t_cm
     }
 
-    /// The flat index of the voxel of the current stretch at distance `t_cm` (within the
-    /// stretch): the voxel containing the point, its coordinates clamped into the stretch's cube.
+    /// The voxel of the current stretch at distance `t_cm` (within the stretch), as flat index
+    /// and coordinates: the voxel containing the point, its coordinates clamped into the
+    /// stretch's box.
     #[inline(always)]
-    pub fn voxel_at(&self, t_cm: f64) -> usize {
+    pub fn voxel_at(&self, t_cm: f64) -> (usize, [usize; 3]) {
         let q = self.point(t_cm);
         let d = self.grid.layout().dims;
         let ix = self.grid.floor_cell(0, q.x, self.vlo[0], self.vhi[0]);
         let iy = self.grid.floor_cell(1, q.y, self.vlo[1], self.vhi[1]);
         let iz = self.grid.floor_cell(2, q.z, self.vlo[2], self.vhi[2]);
-        ix + d[0] * (iy + d[1] * iz)
+        (ix + d[0] * (iy + d[1] * iz), [ix, iy, iz])
+    }
+
+    /// The material index and density of voxel `v` at coordinates `c` (as from
+    /// [`BrickWalk::voxel_at`]): [`VoxelGrid::voxel_medium`], read from the summarised
+    /// materials when the voxel's brick or 2 × 2 × 2 cell has one.
+    #[inline(always)]
+    pub fn voxel_medium(&self, v: usize, c: [usize; 3]) -> (u16, f64) {
+        match self.map.materials.as_ref().and_then(|t| t.get(c)) {
+            Some(m) => (m, self.grid.nominal_densities()[m as usize]),
+            None => self.grid.voxel_medium(v),
+        }
     }
 
     /// Moves to the next stretch; `Err` with the exit when the ray leaves the grid instead.
@@ -534,6 +654,37 @@ mod tests {
         }
     }
 
+    /// A summarised table answers each voxel's own value or nothing, for a grid whose sizes are
+    /// not multiples of 8, with uniform bricks, uniform 2 × 2 × 2 cells inside varying bricks,
+    /// varying cells, and voxels holding the marker value itself.
+    #[test]
+    fn brick_table_answers_each_voxels_value() {
+        let dims = [29, 18, 23];
+        let n: usize = dims.iter().product();
+        let ijk = |i: usize| [i % dims[0], (i / dims[0]) % dims[1], i / (dims[0] * dims[1])];
+        let value = |i: usize| {
+            let [x, y, z] = ijk(i);
+            if i == 4000 { VARIES } else if x < 13 { 7 } else if (x + y + z) % 2 == 0 && z > 15 { 3 } else { ((y / 3) % 2) as u16 }
+        };
+        let t = BrickTable::build(dims, value);
+        let (mut found, mut cells, mut none) = (0, 0, 0);
+        for i in 0..n {
+            let c = ijk(i);
+            match t.get(c) {
+                Some(v) => {
+                    assert_eq!(v, value(i), "voxel {c:?}");
+                    found += 1;
+                    let k = (c[0] >> 3) + t.dims[0] * ((c[1] >> 3) + t.dims[1] * (c[2] >> 3));
+                    cells += (t.top[k] & SPLIT != 0) as usize;
+                }
+                None => none += 1,
+            }
+        }
+        assert!(found > cells && cells > 0 && none > 0, "all three cases: {found} found, {cells} of them from cells, {none} not");
+        assert_eq!(t.get(ijk(4000)), None);
+        assert_eq!(t.heap_bytes(), t.top.len() * 4 + t.cells.len() * 2);
+    }
+
     /// A walk visits stretches in order, each voxel it reports lies in its stretch's medium, and
     /// it leaves the grid where the box exit says.
     #[test]
@@ -572,8 +723,11 @@ mod tests {
                 let (s, e, medium) = w.stretch();
                 assert!(s == last && e >= s, "stretches in order: {s} {e} after {last}");
                 for f in [0.0, 0.5, 1.0] {
-                    let v = w.voxel_at(s + f * (e - s));
+                    let (v, cell) = w.voxel_at(s + f * (e - s));
+                    assert_eq!(cell, ijk(v));
                     let (m, rho) = g.voxel_medium(v);
+                    let (wm, wr) = w.voxel_medium(v, cell);
+                    assert!(wm == m && wr.to_bits() == rho.to_bits());
                     match medium {
                         BrickMedium::Uniform(um, ur) => assert!(um == m && ur == rho),
                         BrickMedium::Class(c) => assert!(g.majorant_classes()[c as usize].iter().any(|&(cm, cr)| cm == m && cr >= rho)),

@@ -33,7 +33,7 @@ mod vec3;
 mod voxel;
 pub mod voxel_file;
 
-pub use bricks::{BrickMedium, BrickWalk, GridExit, MAX_CLASSES};
+pub use bricks::{BrickMedium, BrickTable, BrickWalk, GridExit, MAX_CLASSES, VARIES};
 pub use error::GeometryError;
 pub use geometry::Geometry;
 pub use region::{Aabb, Axis, Boundary, Chord, Medium, Region, World};

@@ -15,7 +15,7 @@
 //! current history touched; results stay bitwise independent of the thread count.
 
 use super::{PhotonView, Tally};
-use dosemill_geometry::{Region, Vec3, VoxelGrid};
+use dosemill_geometry::{BrickTable, Region, Vec3, VoxelGrid};
 use dosemill_xsdata::material::Material;
 use std::sync::Arc;
 
@@ -45,47 +45,12 @@ pub struct VoxelDose {
     pub materials: Arc<Vec<Material>>,
     /// Bins: scoring voxels, then one per region (keV per history).
     pub tally: Tally,
-    /// Region label per 8 × 8 × 8 brick of phantom voxels, [`MIXED_LABEL`] where the brick's
-    /// labels differ: most deposits find their label in this small table instead of the large
-    /// per-voxel array (a cache miss at nearly every deposit otherwise).
-    label_bricks: Option<Arc<LabelBricks>>,
+    /// The region labels summarised by bricks and cells: most deposits find their label in
+    /// this small table instead of the large per-voxel array (a cache miss at nearly every
+    /// deposit otherwise).
+    label_bricks: Option<Arc<BrickTable>>,
     /// log2 of `block` per axis when every entry is a power of two.
     block_shift: Option<[u32; 3]>,
-}
-
-/// Label of a brick whose voxels carry different labels.
-const MIXED_LABEL: u16 = u16::MAX;
-/// Phantom voxels per label brick edge: 2^`LABEL_BRICK_SHIFT`.
-const LABEL_BRICK_SHIFT: u32 = 3;
-
-#[derive(Debug)]
-struct LabelBricks {
-    dims: [usize; 2],
-    labels: Vec<u16>,
-}
-
-impl LabelBricks {
-    fn build(d: [usize; 3], labels: &[u16]) -> LabelBricks {
-        let b = 1usize << LABEL_BRICK_SHIFT;
-        let bd = [d[0].div_ceil(b), d[1].div_ceil(b), d[2].div_ceil(b)];
-        let mut out: Vec<Option<u16>> = vec![None; bd[0] * bd[1] * bd[2]];
-        let mut mixed = vec![false; out.len()];
-        for iz in 0..d[2] {
-            for iy in 0..d[1] {
-                let row = d[0] * (iy + d[1] * iz);
-                let brow = bd[0] * ((iy >> LABEL_BRICK_SHIFT) + bd[1] * (iz >> LABEL_BRICK_SHIFT));
-                for (ix, &l) in labels[row..row + d[0]].iter().enumerate() {
-                    let k = brow + (ix >> LABEL_BRICK_SHIFT);
-                    match out[k] {
-                        None => out[k] = Some(l),
-                        Some(o) => mixed[k] |= o != l,
-                    }
-                }
-            }
-        }
-        let labels = out.iter().zip(&mixed).map(|(l, &m)| if m { MIXED_LABEL } else { l.unwrap_or(MIXED_LABEL) }).collect();
-        LabelBricks { dims: [bd[0], bd[1]], labels }
-    }
 }
 
 impl PartialEq for VoxelDose {
@@ -107,7 +72,7 @@ impl VoxelDose {
         let dims = [d[0].div_ceil(block[0]), d[1].div_ceil(block[1]), d[2].div_ceil(block[2])];
         let regions = labels.as_ref().map(|l| l.1.len()).unwrap_or(0);
         let tally = Tally::shared_template(dims[0] * dims[1] * dims[2] + regions);
-        let label_bricks = labels.as_ref().filter(|l| l.0.len() == grid.num_voxels()).map(|l| Arc::new(LabelBricks::build(d, &l.0)));
+        let label_bricks = labels.as_ref().filter(|l| l.0.len() == grid.num_voxels()).map(|l| Arc::new(BrickTable::build(d, |v| l.0[v])));
         let block_shift = block.iter().all(|b| b.is_power_of_two()).then(|| block.map(|b| b.trailing_zeros()));
         Self { estimator, grid, block, dims, labels, materials, tally, label_bricks, block_shift }
     }
@@ -148,19 +113,11 @@ impl VoxelDose {
         }
     }
 
-    /// The region label of phantom voxel `v` at cell `c`, from its brick when the brick is uniform.
+    /// The region label of phantom voxel `v` at cell `c`, from the summarised labels when its
+    /// brick or 2 × 2 × 2 cell has one.
     #[inline(always)]
-    fn label_of(labels: &(Vec<u16>, Vec<String>), bricks: Option<&LabelBricks>, v: usize, c: [usize; 3]) -> u16 {
-        match bricks {
-            Some(b) => {
-                let k = (c[0] >> LABEL_BRICK_SHIFT) + b.dims[0] * ((c[1] >> LABEL_BRICK_SHIFT) + b.dims[1] * (c[2] >> LABEL_BRICK_SHIFT));
-                match b.labels[k] {
-                    MIXED_LABEL => labels.0[v],
-                    r => r,
-                }
-            }
-            None => labels.0[v],
-        }
+    fn label_of(labels: &(Vec<u16>, Vec<String>), bricks: Option<&BrickTable>, v: usize, c: [usize; 3]) -> u16 {
+        bricks.and_then(|b| b.get(c)).unwrap_or_else(|| labels.0[v])
     }
 
     /// Energy deposited at an interaction point.
@@ -216,9 +173,9 @@ mod tests {
     use super::*;
     use dosemill_geometry::{GridLayout, MaterialIndices};
 
-    /// Voxel coordinates, scoring bins and region labels found through the brick table are the
-    /// ones of the per-voxel arrays, for every voxel of a grid whose sizes are not multiples of
-    /// the brick or the block, with uniform and mixed label bricks.
+    /// Voxel coordinates, scoring bins and region labels found through the summarised labels
+    /// are the ones of the per-voxel arrays, for every voxel of a grid whose sizes are not
+    /// multiples of the brick or the block.
     #[test]
     fn cells_bins_and_labels_match_the_voxel_arrays() {
         let dims = [21, 13, 18];
@@ -232,8 +189,8 @@ mod tests {
             let d = VoxelDose::new(DoseEstimator::Analog, grid.clone(), block, Some(l.clone()), water.clone());
             assert_eq!(d.block_shift.is_some(), block.iter().all(|b| b.is_power_of_two()));
             let bricks = d.label_bricks.as_deref().expect("label bricks");
-            let uniform = bricks.labels.iter().filter(|&&b| b != MIXED_LABEL).count();
-            assert!(uniform > 0 && uniform < bricks.labels.len(), "both kinds of label brick");
+            let summarised = (0..n).filter(|&v| bricks.get(layout.ijk(v)).is_some()).count();
+            assert!(summarised > 0 && summarised < n, "labels both from the table and from the voxels");
             for v in 0..n {
                 let c = layout.ijk(v);
                 assert_eq!(d.ijk(v), c);

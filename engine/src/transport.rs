@@ -357,10 +357,11 @@ impl Problem {
     /// bricks form stretches of constant majorant along the flight (`VoxelGrid::brick_walk`);
     /// an exponential optical depth τ is spent stretch by stretch (μ_max of the stretch × its
     /// length), which places tentative collisions exactly as delta tracking with a piecewise
-    /// constant majorant does. A tentative collision is real with probability μ(voxel)/μ_max;
-    /// in a stretch of one uniform medium μ_max is that medium's μ, so every tentative
-    /// collision there is real and no voxel is read. After a virtual collision a new τ is drawn
-    /// (the exponential is memoryless).
+    /// constant majorant does. A tentative collision is real with probability μ(voxel)/μ_max
+    /// (certainly, with no random number drawn, where μ = μ_max: in a soft-tissue region whose
+    /// majorant is the tissue's μ, every tentative collision in tissue is real); the medium is
+    /// read from the brick tables, the voxel arrays only where bricks and cells are mixed.
+    /// After a virtual collision a new τ is drawn (the exponential is memoryless).
     #[inline]
     #[allow(clippy::too_many_arguments)]
     fn track_voxels(
@@ -402,7 +403,6 @@ impl Problem {
             loop {
                 let (start, end, medium) = walk.stretch();
                 let mu_max = match medium {
-                    BrickMedium::Uniform(m, rho) => local.mu_rho(m, p.ln_kev, &self.materials) * rho,
                     BrickMedium::Class(c) => local.class_mu(c, &classes[c as usize], p.ln_kev, &self.materials),
                     BrickMedium::Global => world.majorant.mu_per_cm_ln(p.ln_kev),
                 };
@@ -427,20 +427,15 @@ impl Problem {
                 // A tentative collision in this stretch.
                 let s = (start + tau / mu_max).min(end);
                 let (v, cell) = walk.voxel_at(s);
-                let m = match medium {
-                    // The majorant is the medium's own μ: every tentative collision is real.
-                    BrickMedium::Uniform(m, _) => m,
-                    _ => {
-                        let (m, rho) = walk.voxel_medium(v, cell);
-                        let mu = local.mu_rho(m, p.ln_kev, &self.materials) * rho;
-                        if !(rng.uniform() * mu_max < mu) {
-                            walk.resume_at(s);
-                            tau = rng.exponential();
-                            continue;
-                        }
-                        m
-                    }
-                };
+                let (m, rho) = walk.voxel_medium(v, cell);
+                let mu = local.mu_rho(m, p.ln_kev, &self.materials) * rho;
+                // Real with probability μ/μ_max; where the voxel's medium sets the majorant
+                // (μ = μ_max, bit for bit) it is real without drawing.
+                if mu < mu_max && !(rng.uniform() * mu_max < mu) {
+                    walk.resume_at(s);
+                    tau = rng.exponential();
+                    continue;
+                }
                 if ctx.segments {
                     ctx.segment(&p, s);
                 }

@@ -1,21 +1,26 @@
-//! Bricks of 8 × 8 × 8 voxels: a small table of the grid's media for fast lookups, and the
+//! Bricks of 8 × 8 × 8 voxels: small tables of the grid's media for fast lookups, and the
 //! regions of constant local majorant that delta (Woodcock) tracking walks through.
 //!
-//! Each brick is *uniform* (all its voxels share one material and density) or *mixed*. A mixed
-//! brick belongs to a **majorant class**: a list of (material, largest density) pairs covering
-//! every voxel of every brick of the class, so `max over the list of (μ/ρ)(E) · ρ` bounds μ of
-//! every such voxel at every energy. Classes are keyed by the brick's exact list; when a grid has
-//! more than [`MAX_CLASSES`] distinct lists (per-voxel densities), bricks are grouped by their
-//! set of materials alone (each at the group's largest density), and any set beyond the limit
-//! falls back to the grid-wide majorant ([`BrickMedium::Global`]).
+//! Each brick is *uniform* (all its voxels share one material and density) or *mixed*, and
+//! belongs to a **majorant class**: a list of (material, largest density) pairs covering every
+//! voxel of every brick of the class, so `max over the list of (μ/ρ)(E) · ρ` bounds μ of every
+//! such voxel at every energy, bit for bit when evaluated with the same μ/ρ. A brick's class is
+//! chosen by its *leading pair*, the (material, density) of its densest voxel: bricks of soft
+//! tissue, of tissue and air, of tissue and lung share a class (its majorant is the tissue's μ in
+//! practice), while bricks holding bone lead with bone and get a class of their own. The class
+//! list is the union of its bricks' lists (largest density per material). When a grid has more
+//! than [`MAX_CLASSES`] distinct leading pairs (per-voxel densities), bricks are grouped by
+//! leading material alone. Bricks holding a material index ≥ 64 fall back to the grid-wide
+//! majorant ([`BrickMedium::Global`]). The class is only a grouping for efficiency: whatever the
+//! grouping, the list covers every voxel of the class, so tracking stays exact.
 //!
 //! For tracking, each brick also stores its **reach** in each of the eight octants of direction:
 //! `r` such that the box of (r+1)³ bricks with this brick at its corner, extending forward
-//! along that octant's signs (clipped to the grid), holds one medium entry (uniform medium or
-//! class) only. A ray is walked box by box ([`BrickWalk`]): entering a brick, it takes the box of
-//! its direction's octant; over each such stretch the majorant is constant, and a tentative
-//! collision is attributed to a voxel of the stretch's box (its coordinates are clamped into the
-//! box, so rounding at a face never picks a voxel the majorant does not cover).
+//! along that octant's signs (clipped to the grid), holds bricks of one class only. A ray is
+//! walked box by box ([`BrickWalk`]): entering a brick, it takes the box of its direction's
+//! octant; over each such stretch the majorant is constant, and a tentative collision is
+//! attributed to a voxel of the stretch's box (its coordinates are clamped into the box, so
+//! rounding at a face never picks a voxel the majorant does not cover).
 
 use crate::{Vec3, VoxelGrid};
 use std::collections::HashMap;
@@ -24,30 +29,28 @@ use std::collections::HashMap;
 pub(crate) const BRICK_SHIFT: u32 = 3;
 /// Material index marking a mixed brick.
 pub(crate) const MIXED: u16 = u16::MAX;
-/// Class index of a mixed brick covered by the grid-wide majorant.
+/// Class index of a brick covered by the grid-wide majorant only.
 const GLOBAL: u16 = u16::MAX;
 /// Most majorant classes of a grid.
 pub const MAX_CLASSES: usize = 64;
 /// Largest reach stored (bricks).
 const MAX_REACH: u8 = u8::MAX;
 
-/// One brick's entry.
+/// One brick's medium.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 pub(crate) struct Brick {
     /// Material of a uniform brick, or [`MIXED`].
     pub material: u16,
-    /// Uniform: slot of the density in [`BrickMap::densities`]; mixed: majorant class or [`GLOBAL`].
+    /// Uniform: slot of the density in [`BrickMap::densities`].
     pub slot: u16,
 }
 
-/// The medium over a stretch of a brick walk.
+/// The majorant over a stretch of a brick walk.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum BrickMedium {
-    /// Every voxel of the stretch has this material index and density (g/cm³).
-    Uniform(u16, f64),
-    /// Voxels differ; the majorant class (an index into [`VoxelGrid::majorant_classes`]) covers them.
+    /// The majorant of this class (an index into [`VoxelGrid::majorant_classes`]).
     Class(u16),
-    /// Voxels differ; only the grid-wide majorant covers them.
+    /// Only the grid-wide majorant covers the stretch.
     Global,
 }
 
@@ -56,6 +59,8 @@ pub enum BrickMedium {
 pub(crate) struct BrickMap {
     pub dims: [usize; 3],
     pub cells: Vec<Brick>,
+    /// Majorant class per brick, or [`GLOBAL`].
+    pub class: Vec<u16>,
     /// Reach per brick and direction octant (bit a of the octant set for a negative
     /// component along axis a; see the module documentation).
     pub reach: Vec<[u8; 8]>,
@@ -93,7 +98,7 @@ impl BrickMap {
             }
         }
         let mut densities: Vec<f64> = Vec::new();
-        let mut cells: Vec<Brick> = first
+        let cells: Vec<Brick> = first
             .iter()
             .zip(&mixed)
             .map(|(f, &x)| match (f, x) {
@@ -108,16 +113,16 @@ impl BrickMap {
                     if slot < u16::MAX as usize && *m != MIXED {
                         Brick { material: *m, slot: slot as u16 }
                     } else {
-                        Brick { material: MIXED, slot: GLOBAL }
+                        Brick { material: MIXED, slot: 0 }
                     }
                 }
-                _ => Brick { material: MIXED, slot: GLOBAL },
+                _ => Brick { material: MIXED, slot: 0 },
             })
             .collect();
-        let classes = assign_classes(g, dims, &mut cells);
-        let reach = reach(dims, &cells);
+        let (class, classes) = assign_classes(&brick_lists(g, dims, &cells, &densities));
+        let reach = reach(dims, &class);
         let materials = g.densities().is_none().then(|| BrickTable::build(g.layout().dims, |v| g.material_indices().get(v)));
-        BrickMap { dims, cells, reach, densities, classes, materials }
+        BrickMap { dims, cells, class, reach, densities, classes, materials }
     }
 
     #[inline(always)]
@@ -126,27 +131,28 @@ impl BrickMap {
     }
 
     #[inline(always)]
-    fn medium(&self, c: Brick) -> BrickMedium {
-        if c.material != MIXED {
-            BrickMedium::Uniform(c.material, self.densities[c.slot as usize])
-        } else if c.slot == GLOBAL {
-            BrickMedium::Global
-        } else {
-            BrickMedium::Class(c.slot)
+    fn medium(&self, k: usize) -> BrickMedium {
+        match self.class[k] {
+            GLOBAL => BrickMedium::Global,
+            c => BrickMedium::Class(c),
         }
     }
 }
 
-/// The (material, largest density) list of each brick that is not uniform, or `None` when one
-/// of its materials has an index ≥ 64 (those bricks use the grid-wide majorant).
-fn mixed_lists(g: &VoxelGrid, dims: [usize; 3], cells: &[Brick]) -> Vec<Option<Vec<(u16, f64)>>> {
+/// The (material, largest density) list of each brick, or `None` when one of its materials has
+/// an index ≥ 64 (those bricks use the grid-wide majorant).
+fn brick_lists(g: &VoxelGrid, dims: [usize; 3], cells: &[Brick], densities: &[f64]) -> Vec<Option<Vec<(u16, f64)>>> {
     let [nx, ny, nz] = g.layout().dims;
     let mut out = vec![None; cells.len()];
     for bz in 0..dims[2] {
         for by in 0..dims[1] {
             for bx in 0..dims[0] {
                 let k = bx + dims[0] * (by + dims[1] * bz);
-                if cells[k].material != MIXED {
+                let c = cells[k];
+                if c.material != MIXED {
+                    if c.material < 64 {
+                        out[k] = Some(vec![(c.material, densities[c.slot as usize])]);
+                    }
                     continue;
                 }
                 let mut mask = 0u64;
@@ -178,65 +184,47 @@ fn mixed_lists(g: &VoxelGrid, dims: [usize; 3], cells: &[Brick]) -> Vec<Option<V
     out
 }
 
-/// Gives every mixed brick a majorant class (see the module documentation); returns the classes.
-fn assign_classes(g: &VoxelGrid, dims: [usize; 3], cells: &mut [Brick]) -> Vec<Vec<(u16, f64)>> {
-    let lists = mixed_lists(g, dims, cells);
-    // Exact lists first.
-    let mut ids: HashMap<Vec<(u16, u64)>, usize> = HashMap::new();
-    let mut classes: Vec<Vec<(u16, f64)>> = Vec::new();
-    for l in lists.iter().flatten() {
-        let key: Vec<(u16, u64)> = l.iter().map(|&(m, r)| (m, r.to_bits())).collect();
-        if !ids.contains_key(&key) {
-            ids.insert(key, classes.len());
-            classes.push(l.clone());
-        }
-    }
-    if classes.len() <= MAX_CLASSES {
-        for (c, l) in cells.iter_mut().zip(&lists) {
-            if let Some(l) = l {
-                let key: Vec<(u16, u64)> = l.iter().map(|&(m, r)| (m, r.to_bits())).collect();
-                c.slot = ids[&key] as u16;
-            }
-        }
-        return classes;
-    }
-    // Too many: group by the set of materials, keeping the most common sets.
-    let mask_of = |l: &Vec<(u16, f64)>| l.iter().fold(0u64, |a, &(m, _)| a | (1 << m));
-    let mut count: HashMap<u64, (usize, usize)> = HashMap::new();
-    for (k, l) in lists.iter().enumerate() {
-        if let Some(l) = l {
-            let e = count.entry(mask_of(l)).or_insert((0, k));
-            e.0 += 1;
-        }
-    }
-    let mut sets: Vec<(u64, usize, usize)> = count.into_iter().map(|(m, (n, first))| (m, n, first)).collect();
-    sets.sort_by(|a, b| b.1.cmp(&a.1).then(a.2.cmp(&b.2)));
-    sets.truncate(MAX_CLASSES);
-    sets.sort_by_key(|s| s.2);
-    let class_of: HashMap<u64, usize> = sets.iter().enumerate().map(|(i, s)| (s.0, i)).collect();
-    let mut max = vec![[0.0f64; 64]; sets.len()];
-    for (c, l) in cells.iter_mut().zip(&lists) {
-        if let Some(l) = l {
-            if let Some(&i) = class_of.get(&mask_of(l)) {
-                c.slot = i as u16;
+/// The majorant class of every brick and the classes' lists (see the module documentation).
+fn assign_classes(lists: &[Option<Vec<(u16, f64)>>]) -> (Vec<u16>, Vec<Vec<(u16, f64)>>) {
+    // The leading pair: the largest density, the lowest material index among equals.
+    let lead = |l: &Vec<(u16, f64)>| l.iter().fold((u16::MAX, f64::NEG_INFINITY), |a, &(m, r)| if r > a.1 { (m, r) } else { a });
+    let pairs: std::collections::HashSet<(u16, u64)> = lists.iter().flatten().map(|l| { let (m, r) = lead(l); (m, r.to_bits()) }).collect();
+    let by_pair = pairs.len() <= MAX_CLASSES;
+    let key = |l: &Vec<(u16, f64)>| { let (m, r) = lead(l); if by_pair { (m, r.to_bits()) } else { (m, 0) } };
+    let mut ids: HashMap<(u16, u64), u16> = HashMap::new();
+    let mut max: Vec<[f64; 64]> = Vec::new();
+    let mut mask: Vec<u64> = Vec::new();
+    let class = lists
+        .iter()
+        .map(|l| match l {
+            None => GLOBAL,
+            Some(l) => {
+                let c = *ids.entry(key(l)).or_insert_with(|| {
+                    max.push([0.0; 64]);
+                    mask.push(0);
+                    (max.len() - 1) as u16
+                });
                 for &(m, r) in l {
-                    max[i][m as usize] = max[i][m as usize].max(r);
+                    let slot = &mut max[c as usize][m as usize];
+                    if mask[c as usize] & (1 << m) == 0 || r > *slot {
+                        *slot = r;
+                    }
+                    mask[c as usize] |= 1 << m;
                 }
+                c
             }
-        }
-    }
-    sets.iter()
-        .enumerate()
-        .map(|(i, s)| (0..64u16).filter(|&m| s.0 & (1 << m) != 0).map(|m| (m, max[i][m as usize])).collect())
-        .collect()
+        })
+        .collect();
+    let classes = max.iter().zip(&mask).map(|(mx, &k)| (0..64u16).filter(|&m| k & (1 << m) != 0).map(|m| (m, mx[m as usize])).collect()).collect();
+    (class, classes)
 }
 
 /// The reach of every brick in every octant (see the module documentation), by dynamic
 /// programming: a brick's box in an octant has size r + 1 = 1 + the smallest box size of its
-/// (up to 7) forward neighbours in that octant, if they all have its entry (else r = 0); the
+/// (up to 7) forward neighbours in that octant, if they all have its class (else r = 0); the
 /// neighbours' boxes and the brick itself cover the larger box. Neighbours beyond the grid
 /// do not limit it (boxes are clipped to the grid).
-fn reach(dims: [usize; 3], cells: &[Brick]) -> Vec<[u8; 8]> {
+fn reach(dims: [usize; 3], cells: &[u16]) -> Vec<[u8; 8]> {
     let idx = |b: [usize; 3]| b[0] + dims[0] * (b[1] + dims[1] * b[2]);
     let mut r = vec![[0u8; 8]; cells.len()];
     for oct in 0..8usize {
@@ -465,7 +453,7 @@ impl<'a> BrickWalk<'a> {
     fn enter(&mut self, b: [usize; 3]) {
         let k = self.map.index(b);
         let r = self.map.reach[k][self.octant] as usize;
-        self.medium = self.map.medium(self.map.cells[k]);
+        self.medium = self.map.medium(k);
         let dims = &self.grid.layout().dims;
         let mut end = f64::INFINITY;
         let mut axis = 0;
@@ -522,10 +510,14 @@ impl<'a> BrickWalk<'a> {
     }
 
     /// The material index and density of voxel `v` at coordinates `c` (as from
-    /// [`BrickWalk::voxel_at`]): [`VoxelGrid::voxel_medium`], read from the summarised
-    /// materials when the voxel's brick or 2 × 2 × 2 cell has one.
+    /// [`BrickWalk::voxel_at`]): [`VoxelGrid::voxel_medium`], read from the brick table when the
+    /// voxel's brick is uniform, else from the summarised materials when its 2 × 2 × 2 cell is.
     #[inline(always)]
     pub fn voxel_medium(&self, v: usize, c: [usize; 3]) -> (u16, f64) {
+        let b = self.map.cells[self.map.index([c[0] >> BRICK_SHIFT, c[1] >> BRICK_SHIFT, c[2] >> BRICK_SHIFT])];
+        if b.material != MIXED {
+            return (b.material, self.map.densities[b.slot as usize]);
+        }
         match self.map.materials.as_ref().and_then(|t| t.get(c)) {
             Some(m) => (m, self.grid.nominal_densities()[m as usize]),
             None => self.grid.voxel_medium(v),
@@ -581,9 +573,12 @@ mod tests {
     use super::*;
     use crate::{GridLayout, MaterialIndices};
 
-    /// Every voxel of every brick is covered by its brick's entry: a uniform brick's medium is
-    /// each voxel's, a class lists each voxel's material at a density at least the voxel's; and
-    /// the box of every brick in every octant holds only its own entry, and is as large as that allows.
+    /// Every voxel of every brick is covered by its brick's class (the class lists its material
+    /// at a density at least its own) and a uniform brick's medium is each voxel's; bricks with
+    /// a material index ≥ 64 use the grid-wide majorant; and the box of every brick in every
+    /// octant holds only its own class, and is as large as that allows. Cases: nominal
+    /// densities, a few per-voxel densities (classes by leading pair), many (by leading
+    /// material), and a material beyond the first 64.
     #[test]
     fn classes_and_reach_cover_their_voxels() {
         let dims = [69, 40, 61];
@@ -596,29 +591,55 @@ mod tests {
                 if (x as i64 - 34).pow(2) + (z as i64 - 30).pow(2) < 26 * 26 { 1 } else if y > 30 && x < 12 { 2 } else { 0 }
             })
             .collect();
-        let dens: Vec<f32> = (0..n).map(|i| 1.0 + (ijk(i)[0] % 5) as f32 * 0.1 * (ijk(i)[2] > 50) as u8 as f32).collect();
-        for density in [None, Some(dens)] {
-            let mut g = VoxelGrid::new(layout, MaterialIndices::U8(mats.clone()), density, vec!["a".into(), "b".into(), "c".into()]).unwrap();
-            g.set_nominal_densities(&[1.0, 2.0, 0.3]).unwrap();
+        let few: Vec<f32> = (0..n).map(|i| 1.0 + (ijk(i)[0] % 5) as f32 * 0.1 * (ijk(i)[2] > 50) as u8 as f32).collect();
+        let many: Vec<f32> = (0..n).map(|i| 1.0 + ijk(i)[0] as f32 * 1e-2 + ijk(i)[2] as f32 * 1e-3).collect();
+        let mut wide = mats.clone();
+        for (i, m) in wide.iter_mut().enumerate() {
+            if ijk(i)[1] < 5 && ijk(i)[0] > 60 {
+                *m = 65;
+            }
+        }
+        let names: Vec<String> = (0..70).map(|k| format!("m{k}")).collect();
+        let nominal: Vec<f64> = (0..70).map(|k| [1.0, 2.0, 0.3][k % 3]).collect();
+        for (case, (mats, density)) in [(&mats, None), (&mats, Some(few)), (&mats, Some(many)), (&wide, None)].into_iter().enumerate() {
+            let mut g = VoxelGrid::new(layout, MaterialIndices::U8(mats.clone()), density, names.clone()).unwrap();
+            g.set_nominal_densities(&nominal).unwrap();
             let map = g.brick_map();
-            let mut kinds = [0usize; 2];
+            let mut kinds = [0usize; 3];
             for i in 0..n {
                 let c = ijk(i);
-                let b = [c[0] >> 3, c[1] >> 3, c[2] >> 3];
+                let k = map.index([c[0] >> 3, c[1] >> 3, c[2] >> 3]);
                 let (m, rho) = g.voxel_medium(i);
-                match map.medium(map.cells[map.index(b)]) {
-                    BrickMedium::Uniform(bm, br) => {
-                        kinds[0] += 1;
-                        assert!(bm == m && br.to_bits() == rho.to_bits(), "voxel {c:?}");
-                    }
-                    BrickMedium::Class(k) => {
+                let cell = map.cells[k];
+                if cell.material != MIXED {
+                    kinds[0] += 1;
+                    assert!(cell.material == m && map.densities[cell.slot as usize].to_bits() == rho.to_bits(), "case {case} voxel {c:?}");
+                }
+                match map.medium(k) {
+                    BrickMedium::Class(cl) => {
                         kinds[1] += 1;
-                        assert!(map.classes[k as usize].iter().any(|&(cm, cr)| cm == m && cr >= rho), "voxel {c:?}");
+                        assert!(map.classes[cl as usize].iter().any(|&(cm, cr)| cm == m && cr >= rho), "case {case} voxel {c:?}");
                     }
-                    BrickMedium::Global => panic!("three materials need no fallback"),
+                    BrickMedium::Global => {
+                        kinds[2] += 1;
+                        let lo = [c[0] & !7, c[1] & !7, c[2] & !7];
+                        let mut has_wide = false;
+                        for z in lo[2]..(lo[2] + 8).min(dims[2]) {
+                            for y in lo[1]..(lo[1] + 8).min(dims[1]) {
+                                for x in lo[0]..(lo[0] + 8).min(dims[0]) {
+                                    has_wide |= mats[x + dims[0] * (y + dims[1] * z)] >= 64;
+                                }
+                            }
+                        }
+                        assert!(has_wide, "case {case}: brick of voxel {c:?} needs no fallback");
+                    }
                 }
             }
-            assert!(kinds[0] > 0 && kinds[1] > 0, "both kinds of brick are exercised: {kinds:?}");
+            assert!((kinds[0] > 0) == (case != 2) && kinds[1] > kinds[0] && (kinds[2] > 0) == (case == 3), "case {case}: {kinds:?}");
+            assert!(map.classes.len() <= MAX_CLASSES);
+            if case == 2 {
+                assert!(map.classes.len() <= 3, "many densities: classes by leading material");
+            }
             let bd = map.dims;
             let mut reached = 0;
             for bz in 0..bd[2] {
@@ -636,7 +657,7 @@ mod tests {
                                 for y in range(1, r + 1) {
                                     for x in range(0, r + 1) {
                                         let inner = range(0, r).contains(&x) && range(1, r).contains(&y) && range(2, r).contains(&z);
-                                        let differs = map.cells[map.index([x, y, z])] != map.cells[k];
+                                        let differs = map.class[map.index([x, y, z])] != map.class[k];
                                         assert!(!(inner && differs), "brick {b:?} octant {oct} reach {r}");
                                         other |= differs;
                                     }
@@ -729,7 +750,6 @@ mod tests {
                     let (wm, wr) = w.voxel_medium(v, cell);
                     assert!(wm == m && wr.to_bits() == rho.to_bits());
                     match medium {
-                        BrickMedium::Uniform(um, ur) => assert!(um == m && ur == rho),
                         BrickMedium::Class(c) => assert!(g.majorant_classes()[c as usize].iter().any(|&(cm, cr)| cm == m && cr >= rho)),
                         BrickMedium::Global => panic!("no fallback expected"),
                     }

@@ -189,6 +189,15 @@ impl Photon {
         self.cached_mu_rho
     }
 
+    /// Keeps a lookup of material `m` at the photon's energy made elsewhere (bit for bit what
+    /// [`Photon::mu_rho`] would compute).
+    #[inline(always)]
+    fn keep_lookup(&mut self, m: u16, at: Lookup, mu_rho: f64) {
+        self.cached_material = m;
+        self.cached = at;
+        self.cached_mu_rho = mu_rho;
+    }
+
     #[inline]
     fn view(&self) -> PhotonView {
         PhotonView {
@@ -441,7 +450,12 @@ impl Problem {
                 }
                 p.pos = walk.point(s);
                 p.region = Region::object(v);
-                p.mu_rho(m, &self.materials);
+                match local.kept(m) {
+                    Some((at, mu_rho)) => p.keep_lookup(m, at, mu_rho),
+                    None => {
+                        p.mu_rho(m, &self.materials);
+                    }
+                }
                 if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
                     return;
                 }

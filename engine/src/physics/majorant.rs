@@ -9,7 +9,7 @@
 //! at the node and a hair to either side (so an edge is never attributed to the wrong side by
 //! rounding), and a 1e-6 relative margin covers the rounding of the interpolation itself.
 
-use super::xs::MaterialXs;
+use super::xs::{Lookup, MaterialXs};
 
 /// The tabulated majorant (1/cm).
 #[derive(Debug, Clone)]
@@ -101,6 +101,7 @@ pub struct LocalMajorants {
     material_known: u64,
     class_known: u64,
     mu_rho: [f64; 64],
+    lookup: [Lookup; 64],
     class_mu: [f64; 64],
 }
 
@@ -113,7 +114,7 @@ impl Default for LocalMajorants {
 impl LocalMajorants {
     /// Nothing known yet.
     pub fn new() -> Self {
-        LocalMajorants { kev_bits: u64::MAX, material_known: 0, class_known: 0, mu_rho: [0.0; 64], class_mu: [0.0; 64] }
+        LocalMajorants { kev_bits: u64::MAX, material_known: 0, class_known: 0, mu_rho: [0.0; 64], lookup: [Lookup::default(); 64], class_mu: [0.0; 64] }
     }
 
     /// Forgets the values when `kev` is not the energy they were computed at.
@@ -134,12 +135,22 @@ impl LocalMajorants {
             return self.mu_rho[m as usize];
         }
         let t = &materials[m as usize];
-        let v = t.mu_rho_at(t.lookup_ln(ln_kev));
+        let at = t.lookup_ln(ln_kev);
+        let v = t.mu_rho_at(at);
         if bit != 0 {
             self.mu_rho[m as usize] = v;
+            self.lookup[m as usize] = at;
             self.material_known |= bit;
         }
         v
+    }
+
+    /// The table lookup of material `m` at the current energy and its μ/ρ, if kept (after
+    /// [`LocalMajorants::mu_rho`] of an index < 64).
+    #[inline(always)]
+    pub fn kept(&self, m: u16) -> Option<(Lookup, f64)> {
+        let bit = 1u64.checked_shl(m as u32).unwrap_or(0);
+        (self.material_known & bit != 0).then(|| (self.lookup[m as usize], self.mu_rho[m as usize]))
     }
 
     /// The majorant (1/cm) of class `c` with its (material, largest density) list.

@@ -158,15 +158,16 @@ impl Pending {
         ((key as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15) >> 32) as usize & mask
     }
 
+    /// Adds `v` to bin `key`; true when the bin is new in this history.
     #[inline(always)]
-    fn add(&mut self, key: u32, v: f64) {
+    fn add(&mut self, key: u32, v: f64) -> bool {
         let mask = self.keys.len() - 1;
         let mut i = Self::slot_of(key, mask);
         loop {
             let k = self.keys[i];
             if k == key {
                 self.vals[i] += v;
-                return;
+                return false;
             }
             if k == EMPTY_KEY {
                 self.keys[i] = key;
@@ -175,7 +176,7 @@ impl Pending {
                 if 2 * self.used.len() > self.keys.len() {
                     self.grow();
                 }
-                return;
+                return true;
             }
             i = (i + 1) & mask;
         }
@@ -191,7 +192,7 @@ impl Pending {
         self.used.clear();
         self.used.reserve(n / 2);
         for (k, v) in entries {
-            self.add(k, v);
+            let _ = self.add(k, v);
         }
     }
 
@@ -303,7 +304,13 @@ impl Tally {
                     pending.history = history;
                 }
                 debug_assert!(bin < sums.bins);
-                pending.add(bin as u32, value);
+                if pending.add(bin as u32, value) {
+                    // Read the bin's words now, so their cache line is on its way long before the
+                    // history ends and its totals are added there.
+                    if let Some(w) = sums.words.get(bin) {
+                        std::hint::black_box(w[0].load(Ordering::Relaxed));
+                    }
+                }
             }
         }
     }

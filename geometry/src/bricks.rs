@@ -15,8 +15,8 @@
 //! grouping, the list covers every voxel of the class, so tracking stays exact.
 //!
 //! For tracking, each brick also stores its **reach** in each of the eight octants of direction:
-//! `r` such that the box of (r+1)³ bricks with this brick at its corner, extending forward
-//! along that octant's signs (clipped to the grid), holds bricks of one class only. A ray is
+//! `r` (at most 15) such that the box of (r+1)³ bricks with this brick at its corner, extending
+//! forward along that octant's signs (clipped to the grid), holds bricks of one class only. A ray is
 //! walked box by box ([`BrickWalk`]): entering a brick, it takes the box of its direction's
 //! octant; over each such stretch the majorant is constant, and a tentative collision is
 //! attributed to a voxel of the stretch's box (its coordinates are clamped into the box, so
@@ -33,16 +33,29 @@ pub(crate) const MIXED: u16 = u16::MAX;
 const GLOBAL: u16 = u16::MAX;
 /// Most majorant classes of a grid.
 pub const MAX_CLASSES: usize = 64;
-/// Largest reach stored (bricks).
-const MAX_REACH: u8 = u8::MAX;
+/// Largest reach stored (bricks; four bits per octant).
+const MAX_REACH: u8 = 15;
 
-/// One brick's medium.
+/// One brick: its medium, majorant class and reach, in one small record (one cache line read
+/// per brick entered).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 pub(crate) struct Brick {
     /// Material of a uniform brick, or [`MIXED`].
     pub material: u16,
     /// Uniform: slot of the density in [`BrickMap::densities`].
     pub slot: u16,
+    /// Majorant class, or [`GLOBAL`].
+    pub class: u16,
+    /// Reach per direction octant, four bits each (octant `o` in bits 4o..4o+4; bit a of `o`
+    /// set for a negative component along axis a; see the module documentation).
+    pub reach: u32,
+}
+
+impl Brick {
+    #[inline(always)]
+    pub fn reach(&self, octant: usize) -> usize {
+        ((self.reach >> (4 * octant)) & 0xf) as usize
+    }
 }
 
 /// The majorant over a stretch of a brick walk.
@@ -59,11 +72,6 @@ pub enum BrickMedium {
 pub(crate) struct BrickMap {
     pub dims: [usize; 3],
     pub cells: Vec<Brick>,
-    /// Majorant class per brick, or [`GLOBAL`].
-    pub class: Vec<u16>,
-    /// Reach per brick and direction octant (bit a of the octant set for a negative
-    /// component along axis a; see the module documentation).
-    pub reach: Vec<[u8; 8]>,
     pub densities: Vec<f64>,
     /// Majorant classes: (material, largest density g/cm³) lists.
     pub classes: Vec<Vec<(u16, f64)>>,
@@ -98,7 +106,7 @@ impl BrickMap {
             }
         }
         let mut densities: Vec<f64> = Vec::new();
-        let cells: Vec<Brick> = first
+        let mut cells: Vec<Brick> = first
             .iter()
             .zip(&mixed)
             .map(|(f, &x)| match (f, x) {
@@ -111,18 +119,22 @@ impl BrickMap {
                         }
                     };
                     if slot < u16::MAX as usize && *m != MIXED {
-                        Brick { material: *m, slot: slot as u16 }
+                        Brick { material: *m, slot: slot as u16, class: GLOBAL, reach: 0 }
                     } else {
-                        Brick { material: MIXED, slot: 0 }
+                        Brick { material: MIXED, slot: 0, class: GLOBAL, reach: 0 }
                     }
                 }
-                _ => Brick { material: MIXED, slot: 0 },
+                _ => Brick { material: MIXED, slot: 0, class: GLOBAL, reach: 0 },
             })
             .collect();
         let (class, classes) = assign_classes(&brick_lists(g, dims, &cells, &densities));
         let reach = reach(dims, &class);
+        for ((c, &k), r) in cells.iter_mut().zip(&class).zip(&reach) {
+            c.class = k;
+            c.reach = r.iter().enumerate().fold(0u32, |a, (o, &v)| a | (v as u32) << (4 * o));
+        }
         let materials = g.densities().is_none().then(|| BrickTable::build(g.layout().dims, |v| g.material_indices().get(v)));
-        BrickMap { dims, cells, class, reach, densities, classes, materials }
+        BrickMap { dims, cells, densities, classes, materials }
     }
 
     #[inline(always)]
@@ -132,7 +144,7 @@ impl BrickMap {
 
     #[inline(always)]
     fn medium(&self, k: usize) -> BrickMedium {
-        match self.class[k] {
+        match self.cells[k].class {
             GLOBAL => BrickMedium::Global,
             c => BrickMedium::Class(c),
         }
@@ -258,7 +270,7 @@ fn reach(dims: [usize; 3], cells: &[u16]) -> Vec<[u8; 8]> {
                             least = least.min(r[j][oct]);
                         }
                     }
-                    r[k][oct] = if same { least.saturating_add(1) } else { 0 };
+                    r[k][oct] = if same { (least + 1).min(MAX_REACH) } else { 0 };
                 }
             }
         }
@@ -452,7 +464,7 @@ impl<'a> BrickWalk<'a> {
     #[inline(always)]
     fn enter(&mut self, b: [usize; 3]) {
         let k = self.map.index(b);
-        let r = self.map.reach[k][self.octant] as usize;
+        let r = self.map.cells[k].reach(self.octant);
         self.medium = self.map.medium(k);
         let dims = &self.grid.layout().dims;
         let mut end = f64::INFINITY;
@@ -648,7 +660,7 @@ mod tests {
                         let b = [bx, by, bz];
                         let k = map.index(b);
                         for oct in 0..8 {
-                            let r = map.reach[k][oct] as usize;
+                            let r = map.cells[k].reach(oct);
                             reached += (r > 0) as usize;
                             // The box in this octant, and the box one larger.
                             let range = |a: usize, r: usize| if oct & (1 << a) == 0 { b[a]..(b[a] + r + 1).min(bd[a]) } else { b[a].saturating_sub(r)..b[a] + 1 };
@@ -657,7 +669,7 @@ mod tests {
                                 for y in range(1, r + 1) {
                                     for x in range(0, r + 1) {
                                         let inner = range(0, r).contains(&x) && range(1, r).contains(&y) && range(2, r).contains(&z);
-                                        let differs = map.class[map.index([x, y, z])] != map.class[k];
+                                        let differs = map.cells[map.index([x, y, z])].class != map.cells[k].class;
                                         assert!(!(inner && differs), "brick {b:?} octant {oct} reach {r}");
                                         other |= differs;
                                     }

@@ -404,7 +404,8 @@ pub struct BrickWalk<'a> {
     dir: Vec3,
     /// Octant of `dir` (bit a set for a negative component along axis a).
     octant: usize,
-    /// The origin in voxel units, (origin − grid origin) / voxel size, per axis.
+    /// The origin in voxel units, (origin − grid origin) / voxel size, per axis (−∞ for an
+    /// axis the ray does not move along).
     origin_vox: [f64; 3],
     /// Voxel size / dir per axis: distance along the ray per voxel (infinite for a zero
     /// component).
@@ -420,12 +421,9 @@ pub struct BrickWalk<'a> {
 }
 
 impl<'a> BrickWalk<'a> {
+    #[inline]
     pub(crate) fn new(grid: &'a VoxelGrid, map: &'a BrickMap, origin: Vec3, dir: Vec3) -> Self {
-        let dims = grid.layout().dims;
-        let mut cell = [0usize; 3];
-        for (a, c) in cell.iter_mut().enumerate() {
-            *c = grid.floor_cell(a, origin.axis(a), 0, dims[a] - 1);
-        }
+        let layout = grid.layout();
         let mut w = BrickWalk {
             grid,
             map,
@@ -441,20 +439,22 @@ impl<'a> BrickWalk<'a> {
             vhi: [0; 3],
             medium: BrickMedium::Global,
         };
-        let layout = grid.layout();
+        let mut brick = [0usize; 3];
         for a in 0..3 {
-            let size = layout.voxel_size_cm.axis(a);
+            let u = (origin.axis(a) - layout.origin_cm.axis(a)) * grid.inv_size.axis(a);
+            // `as usize` saturates: negative and NaN give 0.
+            brick[a] = (u as usize).min(layout.dims[a] - 1) >> BRICK_SHIFT;
             let da = dir.axis(a);
             if da != 0.0 {
-                w.origin_vox[a] = (origin.axis(a) - layout.origin_cm.axis(a)) / size;
-                w.per_voxel_cm[a] = size / da.abs();
+                w.origin_vox[a] = u;
+                w.per_voxel_cm[a] = layout.voxel_size_cm.axis(a) / da.abs();
             } else {
                 // The ray never reaches a plane of this axis: (plane − (−∞)) · ∞ = ∞.
                 w.origin_vox[a] = f64::NEG_INFINITY;
                 w.per_voxel_cm[a] = f64::INFINITY;
             }
         }
-        w.enter([cell[0] >> BRICK_SHIFT, cell[1] >> BRICK_SHIFT, cell[2] >> BRICK_SHIFT]);
+        w.enter(brick);
         w
     }
 

@@ -186,7 +186,7 @@ pub struct VoxelGrid {
     nominal_density_g_cm3: Vec<f64>,
     world: World,
     bounds: Aabb,
-    inv_size: Vec3,
+    pub(crate) inv_size: Vec3,
     /// Leaving through each grid face (-x, +x, -y, +y, -z, +z) leaves the world at once.
     face_escapes: [bool; 6],
     skin_cm: f64,

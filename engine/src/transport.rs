@@ -440,7 +440,7 @@ impl Problem {
                 let mu = local.mu_rho(m, p.ln_kev, &self.materials) * rho;
                 // Real with probability μ/μ_max; where the voxel's medium sets the majorant
                 // (μ = μ_max, bit for bit) it is real without drawing.
-                if mu < mu_max && !(rng.uniform() * mu_max < mu) {
+                if mu < mu_max && rng.uniform() * mu_max >= mu {
                     walk.resume_at(s);
                     tau = rng.exponential();
                     continue;

@@ -236,6 +236,7 @@ fn assign_classes(lists: &[Option<Vec<(u16, f64)>>]) -> (Vec<u16>, Vec<Vec<(u16,
 /// (up to 7) forward neighbours in that octant, if they all have its class (else r = 0); the
 /// neighbours' boxes and the brick itself cover the larger box. Neighbours beyond the grid
 /// do not limit it (boxes are clipped to the grid).
+#[allow(clippy::needless_range_loop)] // octants and axes index several arrays
 fn reach(dims: [usize; 3], cells: &[u16]) -> Vec<[u8; 8]> {
     let idx = |b: [usize; 3]| b[0] + dims[0] * (b[1] + dims[1] * b[2]);
     let mut r = vec![[0u8; 8]; cells.len()];
@@ -422,6 +423,7 @@ pub struct BrickWalk<'a> {
 
 impl<'a> BrickWalk<'a> {
     #[inline]
+    #[allow(clippy::needless_range_loop)] // axes index several arrays
     pub(crate) fn new(grid: &'a VoxelGrid, map: &'a BrickMap, origin: Vec3, dir: Vec3) -> Self {
         let layout = grid.layout();
         let mut w = BrickWalk {

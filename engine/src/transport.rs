@@ -3,7 +3,9 @@
 //! A history starts one source photon and follows it and any fluorescence photons it causes
 //! until each is absorbed, falls below the energy cut-off or leaves the world. Slab geometry is
 //! tracked exactly (distance to the next boundary vs. a sampled free path, resampled at each
-//! boundary, which the memoryless exponential allows).
+//! boundary, which the memoryless exponential allows). Voxel grids are tracked by delta
+//! (Woodcock) tracking with a majorant that is constant over stretches of 8 × 8 × 8-voxel
+//! bricks (see `Problem::track_voxels` and `dosemill_geometry::BrickWalk`).
 //!
 //! Parallel runs: histories form fixed chunks; workers (one per thread) pull chunk indices from a
 //! shared counter and score into their own tallies; tallies merge exactly (integer sums), so the
@@ -13,8 +15,8 @@ use crate::physics::{compton, fluorescence, isotropic, photoelectric, rotate, xs
 use crate::rng::{chunk_range, history_stream, Stream};
 use crate::score::{counts, PhotonView, Scorer};
 use crate::source::Source;
-use crate::physics::majorant::Majorant;
-use dosemill_geometry::{Region, SlabStack, Vec3, VoxelGrid};
+use crate::physics::majorant::{LocalMajorants, Majorant};
+use dosemill_geometry::{BrickMedium, Region, SlabStack, Vec3, VoxelGrid};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 /// Most photons a history can hold waiting (fluorescence); beyond this, the energy of further
@@ -76,7 +78,8 @@ pub struct VoxelWorld {
     pub tracking: VoxelTracking,
     /// The grid (shared with scorers that walk it).
     pub grid: std::sync::Arc<VoxelGrid>,
-    /// μ_max(E) over the grid's materials at their largest densities.
+    /// μ_max(E) over the grid's materials at their largest densities: the majorant of bricks
+    /// that no local majorant class covers (see `dosemill_geometry::BrickMedium::Global`).
     pub majorant: Majorant,
     /// Region label per voxel and the label names (phantom regions), if any.
     pub labels: Option<std::sync::Arc<(Vec<u16>, Vec<String>)>>,
@@ -186,6 +189,15 @@ impl Photon {
         self.cached_mu_rho
     }
 
+    /// Keeps a lookup of material `m` at the photon's energy made elsewhere (bit for bit what
+    /// [`Photon::mu_rho`] would compute).
+    #[inline(always)]
+    fn keep_lookup(&mut self, m: u16, at: Lookup, mu_rho: f64) {
+        self.cached_material = m;
+        self.cached = at;
+        self.cached_mu_rho = mu_rho;
+    }
+
     #[inline]
     fn view(&self) -> PhotonView {
         PhotonView {
@@ -283,11 +295,12 @@ impl Problem {
                 }
             }
             Geometry::Voxels(world) => {
+                let mut local = LocalMajorants::new();
                 while depth > 0 {
                     depth -= 1;
                     let photon = stack[depth];
                     match world.tracking {
-                        VoxelTracking::Woodcock => self.track_voxels(world, photon, &mut rng, &mut ctx, &mut stack, &mut depth),
+                        VoxelTracking::Woodcock => self.track_voxels(world, photon, &mut local, &mut rng, &mut ctx, &mut stack, &mut depth),
                         VoxelTracking::Exact => self.track_exact(&*world.grid, photon, &mut rng, &mut ctx, &mut stack, &mut depth),
                     }
                 }
@@ -360,13 +373,22 @@ impl Problem {
     }
 
     /// Follows one photon through a voxel world until it is absorbed or escapes: exact tracking
-    /// in the world medium, Woodcock tracking with the majorant inside the grid (a tentative
-    /// collision at distance −ln ξ/μ_max is real with probability μ(voxel)/μ_max).
+    /// in the world medium, Woodcock tracking with local majorants inside the grid. The grid's
+    /// bricks form stretches of constant majorant along the flight (`VoxelGrid::brick_walk`);
+    /// an exponential optical depth τ is spent stretch by stretch (μ_max of the stretch × its
+    /// length), which places tentative collisions exactly as delta tracking with a piecewise
+    /// constant majorant does. A tentative collision is real with probability μ(voxel)/μ_max
+    /// (certainly, with no random number drawn, where μ = μ_max: in a soft-tissue region whose
+    /// majorant is the tissue's μ, every tentative collision in tissue is real); the medium is
+    /// read from the brick tables, the voxel arrays only where bricks and cells are mixed.
+    /// After a virtual collision a new τ is drawn (the exponential is memoryless).
     #[inline]
+    #[allow(clippy::too_many_arguments)]
     fn track_voxels(
         &self,
         world: &VoxelWorld,
         mut p: Photon,
+        local: &mut LocalMajorants,
         rng: &mut Stream,
         ctx: &mut Ctx,
         stack: &mut [Photon; STACK_DEPTH],
@@ -381,6 +403,7 @@ impl Problem {
         let grid = &*world.grid;
         let bounds = grid.bounds();
         let world_box = grid.world().bounds;
+        let classes = grid.majorant_classes();
         loop {
             if p.region.is_escaped() {
                 ctx.escape(&p);
@@ -392,40 +415,63 @@ impl Problem {
                 }
                 continue;
             }
-            // Inside the grid: delta tracking to the next real collision or out of the grid.
-            let mu_max = world.majorant.mu_per_cm_ln(p.ln_kev);
-            let s = rng.exponential() / mu_max;
-            let (exit, axis, plane) = bounds.exit(p.pos, p.dir);
-            if s >= exit {
+            // Inside the grid: delta tracking with the local majorant of each stretch, to the
+            // next real collision or out of the grid.
+            local.at_energy(p.kev);
+            let mut walk = grid.brick_walk(p.pos, p.dir);
+            // Optical depth (in majorant units) left to the next tentative collision.
+            let mut tau = rng.exponential();
+            loop {
+                let (start, end, medium) = walk.stretch();
+                let mu_max = match medium {
+                    BrickMedium::Class(c) => local.class_mu(c, &classes[c as usize], p.ln_kev, &self.materials),
+                    BrickMedium::Global => world.majorant.mu_per_cm_ln(p.ln_kev),
+                };
+                let depth_here = mu_max * (end - start);
+                if tau >= depth_here {
+                    tau -= depth_here;
+                    match walk.advance() {
+                        Ok(()) => continue,
+                        Err(exit) => {
+                            if ctx.segments {
+                                ctx.segment(&p, exit.distance_cm);
+                            }
+                            let q = walk.point(exit.distance_cm).with_axis(exit.axis, exit.plane_cm);
+                            p.pos = q;
+                            // Just beyond the grid face: the world, unless the world box ends there too.
+                            let beyond = q + p.dir * (1e-9 * (1.0 + bounds.scale_cm()));
+                            p.region = if world_box.contains(beyond) { Region::WORLD } else { Region::ESCAPED };
+                            break;
+                        }
+                    }
+                }
+                // A tentative collision in this stretch.
+                let s = (start + tau / mu_max).min(end);
+                let (v, cell) = walk.voxel_at(s);
+                let (m, rho) = walk.voxel_medium(v, cell);
+                let mu = local.mu_rho(m, p.ln_kev, &self.materials) * rho;
+                // Real with probability μ/μ_max; where the voxel's medium sets the majorant
+                // (μ = μ_max, bit for bit) it is real without drawing.
+                if mu < mu_max && rng.uniform() * mu_max >= mu {
+                    walk.resume_at(s);
+                    tau = rng.exponential();
+                    continue;
+                }
                 if ctx.segments {
-                    ctx.segment(&p, exit);
+                    ctx.segment(&p, s);
                 }
-                let mut q = p.pos + p.dir * exit;
-                if let Some(a) = axis.index() {
-                    q = q.with_axis(a, plane);
-                }
-                p.pos = q;
-                // Just beyond the grid face: the world, unless the world box ends there too.
-                let beyond = q + p.dir * (1e-9 * (1.0 + bounds.scale_cm()));
-                p.region = if world_box.contains(beyond) { Region::WORLD } else { Region::ESCAPED };
-                continue;
-            }
-            if ctx.segments {
-                ctx.segment(&p, s);
-            }
-            p.pos = p.pos + p.dir * s;
-            let Some((v, cell)) = grid.cell_at(p.pos) else {
-                // Rounding put the point on the outer face: leave through it.
-                p.region = Region::WORLD;
-                continue;
-            };
-            let (m, rho) = grid.medium_at_cell(v, cell);
-            let mu = p.mu_rho(m, &self.materials) * rho;
-            if rng.uniform() * mu_max < mu {
+                p.pos = walk.point(s);
                 p.region = Region::object(v);
+                match local.kept(m) {
+                    Some((at, mu_rho)) => p.keep_lookup(m, at, mu_rho),
+                    None => {
+                        p.mu_rho(m, &self.materials);
+                    }
+                }
                 if !self.interact(&mut p, &self.materials[m as usize], rng, ctx, stack, depth) {
                     return;
                 }
+                break;
             }
         }
     }

@@ -212,3 +212,52 @@ fn voxel_dose_bits_do_not_depend_on_threads_or_splitting() {
     assert_eq!(into.histories, 20_000);
     assert_eq!(merged.chunks, chunks);
 }
+
+/// Uncollided transmission equals exp(−∫μ ds) (binomial |z| < 4) where the local majorants
+/// take their other paths: per-voxel densities varying across the phantom (so many bricks
+/// lead with a different density that the majorant classes group by material), and a lead bar
+/// of material index 65 (bricks beyond the 64 cached materials fall back to the grid-wide
+/// majorant).
+#[test]
+fn uncollided_transmission_with_per_voxel_densities_and_the_global_fallback() {
+    let o = PhysicsOptions::default();
+    let water = material("water", 1.0, WATER, &o);
+    let lead = material("lead", 11.35, LEAD, &o);
+    let dims = [40usize, 40, 72];
+    let n: usize = dims.iter().product();
+    let ijk = |i: usize| [i % dims[0], (i / dims[0]) % dims[1], i / (dims[0] * dims[1])];
+    let bar = |c: [usize; 3]| (10..15).contains(&c[2]) && (13..27).contains(&c[0]) && (17..23).contains(&c[1]);
+    let layout = GridLayout { dims, voxel_size_cm: Vec3::new(0.3, 0.3, 0.3), origin_cm: Vec3::new(-6.0, -6.0, 0.0) };
+    for wide in [false, true] {
+        let (mats, names, idx, density): (Vec<_>, Vec<String>, Vec<u8>, Option<Vec<f32>>) = if wide {
+            let mats = (0..66).map(|k| if k == 65 { lead.clone() } else { water.clone() }).collect();
+            (mats, (0..66).map(|k| format!("m{k}")).collect(), (0..n).map(|i| if bar(ijk(i)) { 65 } else { 0 }).collect(), None)
+        } else {
+            let dens = (0..n).map(|i| { let [x, y, z] = ijk(i); if bar([x, y, z]) { 11.35 } else { 0.3 + 0.02 * z as f32 + 0.01 * x as f32 + 0.001 * y as f32 } }).collect();
+            (vec![water.clone(), lead.clone()], vec!["water".into(), "lead".into()], (0..n).map(|i| bar(ijk(i)) as u8).collect(), Some(dens))
+        };
+        let mut g = VoxelGrid::new(layout, MaterialIndices::U8(idx), density, names).unwrap();
+        g.set_nominal_densities(&mats.iter().map(|m| m.density_g_cm3).collect::<Vec<_>>()).unwrap();
+        let b = g.bounds();
+        let g = g.with_world(World { medium: None, bounds: Aabb::new(b.min_cm - Vec3::new(1.0, 1.0, 2.0), b.max_cm + Vec3::new(1.0, 1.0, 1.0)) }).unwrap();
+        if wide {
+            assert!(g.majorant_classes().iter().all(|c| c.iter().all(|&(m, _)| m != 65)), "the lead bar's bricks use the grid-wide majorant");
+        } else {
+            assert!(g.majorant_classes().len() <= 2, "classes grouped by leading material: {}", g.majorant_classes().len());
+        }
+        for (i, (x, y)) in [(0.1, 0.2), (-4.3, 3.1)].into_iter().enumerate() {
+            let dir = Vec3::new(0.03, -0.01, 1.0).normalised();
+            let start = Vec3::new(x, y, -1.0);
+            let src = Source::new(Emission::Pencil { origin_cm: start, direction: dir }, EnergySpectrum::Mono(100.0));
+            let p = voxel_problem(g.clone(), mats.clone(), src, vec![Scorer::transmitted_spectrum(99.5, 1.0, 1, false)], VoxelTracking::Woodcock);
+            let tau = optical_depth(&p.geometry, &p.materials, start, dir, 100.0, 100.0);
+            assert!(tau > 0.5, "ray {i} crosses material: τ = {tau}");
+            let histories = 200_000u64;
+            let r = run(&p, &settings(histories, 41 + i as u64 + 2 * wide as u64, 2));
+            let (m, _) = r.scorers[0].tally().mean_and_sigma(histories);
+            let k = m[0] * histories as f64;
+            let z = binomial_z(k, histories as f64, (-tau).exp());
+            assert!(z.abs() < 4.0, "wide {wide} ray {i}: τ = {tau}, transmitted {k} of {histories}, z = {z}");
+        }
+    }
+}

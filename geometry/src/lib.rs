@@ -23,6 +23,7 @@
 //! ```
 #![deny(missing_docs)]
 
+mod bricks;
 mod error;
 mod geometry;
 pub mod phantom;
@@ -32,6 +33,7 @@ mod vec3;
 mod voxel;
 pub mod voxel_file;
 
+pub use bricks::{BrickMedium, BrickTable, BrickWalk, GridExit, MAX_CLASSES, VARIES};
 pub use error::GeometryError;
 pub use geometry::Geometry;
 pub use region::{Aabb, Axis, Boundary, Chord, Medium, Region, World};

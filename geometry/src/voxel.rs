@@ -13,6 +13,7 @@
 //! lower axis (x, then y, then z), and an entry from the world must cross more than a
 //! rounding skin of the grid.
 
+use crate::bricks::{BrickMap, BRICK_SHIFT, MIXED};
 use crate::region::{Aabb, Axis, Boundary, Medium, Region, World};
 use crate::{GeometryError, Vec3};
 use serde::{Deserialize, Serialize};
@@ -185,76 +186,12 @@ pub struct VoxelGrid {
     nominal_density_g_cm3: Vec<f64>,
     world: World,
     bounds: Aabb,
-    inv_size: Vec3,
+    pub(crate) inv_size: Vec3,
     /// Leaving through each grid face (-x, +x, -y, +y, -z, +z) leaves the world at once.
     face_escapes: [bool; 6],
     skin_cm: f64,
     /// Bricks of voxels with one medium, built on first use (see [`VoxelGrid::medium_at_cell`]).
     bricks: std::sync::OnceLock<BrickMap>,
-}
-
-/// Voxels per brick edge: 2^`BRICK_SHIFT`.
-const BRICK_SHIFT: u32 = 3;
-/// Material index marking a brick whose voxels differ.
-const MIXED: u16 = u16::MAX;
-
-/// The grid cut into bricks of 8 × 8 × 8 voxels, each holding the material and density shared by
-/// all its voxels, or [`MIXED`]. Looking a medium up in a uniform brick reads this small table
-/// (4 bytes per brick: material and the slot of its density in a table of distinct densities; a
-/// 256³ grid's 32³ bricks take 128 kB and stay in cache) instead of the large per-voxel arrays,
-/// which in delta tracking is a cache miss at nearly every step.
-#[derive(Clone, Debug)]
-struct BrickMap {
-    dims: [usize; 3],
-    /// (material, density slot) per brick; material [`MIXED`] for a brick whose voxels differ.
-    cells: Vec<(u16, u16)>,
-    densities: Vec<f64>,
-}
-
-impl BrickMap {
-    fn build(g: &VoxelGrid) -> BrickMap {
-        let [nx, ny, nz] = g.layout.dims;
-        let b = 1usize << BRICK_SHIFT;
-        let dims = [nx.div_ceil(b), ny.div_ceil(b), nz.div_ceil(b)];
-        let mut first: Vec<Option<(u16, f64)>> = vec![None; dims[0] * dims[1] * dims[2]];
-        let mut mixed = vec![false; first.len()];
-        for iz in 0..nz {
-            for iy in 0..ny {
-                let row = nx * (iy + ny * iz);
-                let brow = dims[0] * ((iy >> BRICK_SHIFT) + dims[1] * (iz >> BRICK_SHIFT));
-                for ix in 0..nx {
-                    let k = brow + (ix >> BRICK_SHIFT);
-                    if mixed[k] {
-                        continue;
-                    }
-                    let (m, rho) = g.voxel_medium(row + ix);
-                    match first[k] {
-                        None => first[k] = Some((m, rho)),
-                        Some((m0, r0)) => mixed[k] = m0 != m || r0.to_bits() != rho.to_bits(),
-                    }
-                }
-            }
-        }
-        let mut densities: Vec<f64> = Vec::new();
-        let cells = first
-            .iter()
-            .zip(&mixed)
-            .map(|(f, &x)| match (f, x) {
-                (Some((m, rho)), false) => {
-                    let slot = match densities.iter().position(|d| d.to_bits() == rho.to_bits()) {
-                        Some(j) => j,
-                        None => {
-                            densities.push(*rho);
-                            densities.len() - 1
-                        }
-                    };
-                    if slot < u16::MAX as usize && *m != MIXED { (*m, slot as u16) } else { (MIXED, 0) }
-                }
-                _ => (MIXED, 0),
-            })
-            .collect();
-        BrickMap { dims, cells, densities }
-    }
 }
 
 impl PartialEq for VoxelGrid {
@@ -536,14 +473,29 @@ impl VoxelGrid {
     /// 8 × 8 × 8 brick is uniform. The table is built on the first call (one pass over the grid).
     #[inline]
     pub fn medium_at_cell(&self, i: usize, c: [usize; 3]) -> (u16, f64) {
-        let b = self.bricks.get_or_init(|| BrickMap::build(self));
-        let k = (c[0] >> BRICK_SHIFT) + b.dims[0] * ((c[1] >> BRICK_SHIFT) + b.dims[1] * (c[2] >> BRICK_SHIFT));
-        let (m, slot) = b.cells[k];
-        if m != MIXED {
-            (m, b.densities[slot as usize])
+        let b = self.brick_map();
+        let cell = b.cells[b.index([c[0] >> BRICK_SHIFT, c[1] >> BRICK_SHIFT, c[2] >> BRICK_SHIFT])];
+        if cell.material != MIXED {
+            (cell.material, b.densities[cell.slot as usize])
         } else {
             self.voxel_medium(i)
         }
+    }
+
+    /// The brick table, built on first use.
+    #[inline(always)]
+    pub(crate) fn brick_map(&self) -> &BrickMap {
+        self.bricks.get_or_init(|| BrickMap::build(self))
+    }
+
+    /// The voxel coordinate along axis `a` of a point at `x`: the floor of its cell position,
+    /// clamped to `lo..=hi` (no correction against the exact plane positions: for points that
+    /// rounding may put on the wrong side of a plane, any of the two voxels will do).
+    #[inline(always)]
+    pub(crate) fn floor_cell(&self, a: usize, x: f64, lo: usize, hi: usize) -> usize {
+        let f = (x - self.layout.origin_cm.axis(a)) * self.inv_size.axis(a);
+        // `as usize` saturates: negative and NaN give 0.
+        (f as usize).clamp(lo, hi)
     }
 
     /// Index of the voxel containing `p`, or `None` outside the (closed) grid or for NaN.
@@ -901,7 +853,7 @@ mod tests {
                 }
             };
             check(&g);
-            let uniform = g.bricks.get().unwrap().cells.iter().filter(|c| c.0 != MIXED).count();
+            let uniform = g.bricks.get().unwrap().cells.iter().filter(|c| c.material != MIXED).count();
             assert!(uniform > 0 && uniform < g.bricks.get().unwrap().cells.len(), "both kinds of brick are exercised");
             // New nominal densities rebuild the table.
             g.set_nominal_densities(&[0.5, 2.5, 3.5]).unwrap();

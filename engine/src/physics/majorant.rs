@@ -9,7 +9,7 @@
 //! at the node and a hair to either side (so an edge is never attributed to the wrong side by
 //! rounding), and a 1e-6 relative margin covers the rounding of the interpolation itself.
 
-use super::xs::MaterialXs;
+use super::xs::{Lookup, MaterialXs};
 
 /// The tabulated majorant (1/cm).
 #[derive(Debug, Clone)]
@@ -85,6 +85,90 @@ impl Majorant {
         }
         let t = (ln_kev - self.ln_e[i]) / (self.ln_e[i + 1] - self.ln_e[i]);
         (self.ln_mu[i] + t * (self.ln_mu[i + 1] - self.ln_mu[i])).exp()
+    }
+}
+
+/// Local majorants of a voxel grid's bricks at one photon energy, computed on first use and
+/// kept while the energy does not change (see `dosemill_geometry::BrickMedium`).
+///
+/// A uniform stretch's majorant is its own μ; a class's is max over its (material m, density
+/// ρ_m) list of (μ/ρ)_m(E) · ρ_m. Both use the very μ/ρ the tracking compares against
+/// ([`MaterialXs::mu_rho_at`] of [`MaterialXs::lookup_ln`]), so the bound holds bit for bit,
+/// with no margin. Materials and classes with index ≥ 64 are computed each time, not kept.
+#[derive(Debug, Clone)]
+pub struct LocalMajorants {
+    kev_bits: u64,
+    material_known: u64,
+    class_known: u64,
+    mu_rho: [f64; 64],
+    lookup: [Lookup; 64],
+    class_mu: [f64; 64],
+}
+
+impl Default for LocalMajorants {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl LocalMajorants {
+    /// Nothing known yet.
+    pub fn new() -> Self {
+        LocalMajorants { kev_bits: u64::MAX, material_known: 0, class_known: 0, mu_rho: [0.0; 64], lookup: [Lookup::default(); 64], class_mu: [0.0; 64] }
+    }
+
+    /// Forgets the values when `kev` is not the energy they were computed at.
+    #[inline(always)]
+    pub fn at_energy(&mut self, kev: f64) {
+        if kev.to_bits() != self.kev_bits {
+            self.kev_bits = kev.to_bits();
+            self.material_known = 0;
+            self.class_known = 0;
+        }
+    }
+
+    /// μ/ρ (cm²/g) of material `m` at the current energy (ln given).
+    #[inline(always)]
+    pub fn mu_rho(&mut self, m: u16, ln_kev: f64, materials: &[MaterialXs]) -> f64 {
+        let bit = 1u64.checked_shl(m as u32).unwrap_or(0);
+        if self.material_known & bit != 0 {
+            return self.mu_rho[m as usize];
+        }
+        let t = &materials[m as usize];
+        let at = t.lookup_ln(ln_kev);
+        let v = t.mu_rho_at(at);
+        if bit != 0 {
+            self.mu_rho[m as usize] = v;
+            self.lookup[m as usize] = at;
+            self.material_known |= bit;
+        }
+        v
+    }
+
+    /// The table lookup of material `m` at the current energy and its μ/ρ, if kept (after
+    /// [`LocalMajorants::mu_rho`] of an index < 64).
+    #[inline(always)]
+    pub fn kept(&self, m: u16) -> Option<(Lookup, f64)> {
+        let bit = 1u64.checked_shl(m as u32).unwrap_or(0);
+        (self.material_known & bit != 0).then(|| (self.lookup[m as usize], self.mu_rho[m as usize]))
+    }
+
+    /// The majorant (1/cm) of class `c` with its (material, largest density) list.
+    #[inline(always)]
+    pub fn class_mu(&mut self, c: u16, list: &[(u16, f64)], ln_kev: f64, materials: &[MaterialXs]) -> f64 {
+        let bit = 1u64.checked_shl(c as u32).unwrap_or(0);
+        if self.class_known & bit != 0 {
+            return self.class_mu[c as usize];
+        }
+        let mut mx = 0.0f64;
+        for &(m, rho) in list {
+            mx = mx.max(self.mu_rho(m, ln_kev, materials) * rho);
+        }
+        if bit != 0 {
+            self.class_mu[c as usize] = mx;
+            self.class_known |= bit;
+        }
+        mx
     }
 }
 

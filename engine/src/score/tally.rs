@@ -112,29 +112,29 @@ const PENDING_SLOTS: usize = 1024;
 #[derive(Debug)]
 pub struct SharedSums {
     bins: usize,
-    /// Empty in a template (see [`Tally::shared_template`]).
-    sum: Vec<AtomicU64>,
-    sum2: Vec<AtomicU64>,
+    /// Per bin, the sum of values and the sum of squares side by side (one cache line holds
+    /// both, so a history's fold touches one line per bin). Empty in a template (see
+    /// [`Tally::shared_template`]).
+    words: Vec<[AtomicU64; 2]>,
 }
 
 impl SharedSums {
     fn zeroed(bins: usize) -> Self {
         assert!(bins < EMPTY_KEY as usize, "a shared tally holds fewer than 2^32 - 1 bins");
-        SharedSums { bins, sum: (0..bins).map(|_| AtomicU64::new(0)).collect(), sum2: (0..bins).map(|_| AtomicU64::new(0)).collect() }
+        SharedSums { bins, words: (0..bins).map(|_| [AtomicU64::new(0), AtomicU64::new(0)]).collect() }
     }
 
     fn template(bins: usize) -> Self {
         assert!(bins < EMPTY_KEY as usize, "a shared tally holds fewer than 2^32 - 1 bins");
-        SharedSums { bins, sum: Vec::new(), sum2: Vec::new() }
+        SharedSums { bins, words: Vec::new() }
     }
 
     /// Word `i` of the sums and of the squares (0 in a template).
     #[inline]
     fn words(&self, i: usize) -> (u64, u64) {
-        if self.sum.is_empty() {
-            (0, 0)
-        } else {
-            (self.sum[i].load(Ordering::Relaxed), self.sum2[i].load(Ordering::Relaxed))
+        match self.words.get(i) {
+            Some([a, b]) => (a.load(Ordering::Relaxed), b.load(Ordering::Relaxed)),
+            None => (0, 0),
         }
     }
 }
@@ -158,15 +158,16 @@ impl Pending {
         ((key as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15) >> 32) as usize & mask
     }
 
+    /// Adds `v` to bin `key`; true when the bin is new in this history.
     #[inline(always)]
-    fn add(&mut self, key: u32, v: f64) {
+    fn add(&mut self, key: u32, v: f64) -> bool {
         let mask = self.keys.len() - 1;
         let mut i = Self::slot_of(key, mask);
         loop {
             let k = self.keys[i];
             if k == key {
                 self.vals[i] += v;
-                return;
+                return false;
             }
             if k == EMPTY_KEY {
                 self.keys[i] = key;
@@ -175,7 +176,7 @@ impl Pending {
                 if 2 * self.used.len() > self.keys.len() {
                     self.grow();
                 }
-                return;
+                return true;
             }
             i = (i + 1) & mask;
         }
@@ -191,21 +192,22 @@ impl Pending {
         self.used.clear();
         self.used.reserve(n / 2);
         for (k, v) in entries {
-            self.add(k, v);
+            let _ = self.add(k, v);
         }
     }
 
     /// Adds the open history's totals and their squares to `sums` and empties the table.
     fn fold_into(&mut self, sums: &SharedSums) {
         let h = self.history;
-        assert!(self.used.is_empty() || !sums.sum.is_empty(), "scoring into a shared-tally template: score into Tally::zeroed_like() or worker_view()");
+        assert!(self.used.is_empty() || !sums.words.is_empty(), "scoring into a shared-tally template: score into Tally::zeroed_like() or worker_view()");
         for &i in &self.used {
             let i = i as usize;
             let (key, c) = (self.keys[i], self.vals[i]);
             if c != 0.0 {
                 let (u1, u2) = dithers(h, key);
-                add_saturating(&sums.sum[key as usize], to_word(c, SHARED_SUM_SCALE, u1));
-                add_saturating(&sums.sum2[key as usize], to_word(c * c, SHARED_SUM2_SCALE, u2));
+                let [w, w2] = &sums.words[key as usize];
+                add_saturating(w, to_word(c, SHARED_SUM_SCALE, u1));
+                add_saturating(w2, to_word(c * c, SHARED_SUM2_SCALE, u2));
             }
             self.keys[i] = EMPTY_KEY;
         }
@@ -305,7 +307,13 @@ impl Tally {
                     pending.history = history;
                 }
                 debug_assert!(bin < sums.bins);
-                pending.add(bin as u32, value);
+                if pending.add(bin as u32, value) {
+                    // Read the bin's words now, so their cache line is on its way long before the
+                    // history ends and its totals are added there.
+                    if let Some(w) = sums.words.get(bin) {
+                        std::hint::black_box(w[0].load(Ordering::Relaxed));
+                    }
+                }
             }
         }
     }
@@ -338,12 +346,12 @@ impl Tally {
                 }
             }
             (Store::Shared { sums, .. }, Store::Shared { sums: o, .. }) => {
-                if !Arc::ptr_eq(sums, o) && !o.sum.is_empty() {
-                    assert!(!sums.sum.is_empty(), "merging into a shared-tally template");
-                    for i in 0..sums.sum.len() {
+                if !Arc::ptr_eq(sums, o) && !o.words.is_empty() {
+                    assert!(!sums.words.is_empty(), "merging into a shared-tally template");
+                    for i in 0..sums.words.len() {
                         let (a, b) = o.words(i);
-                        add_saturating(&sums.sum[i], a);
-                        add_saturating(&sums.sum2[i], b);
+                        add_saturating(&sums.words[i][0], a);
+                        add_saturating(&sums.words[i][1], b);
                     }
                 }
             }
@@ -372,10 +380,10 @@ impl Tally {
                 }
             }
             Store::Shared { sums, .. } => {
-                assert!(!sums.sum.is_empty() || sums.bins == 0, "adding into a shared-tally template");
+                assert!(!sums.words.is_empty() || sums.bins == 0, "adding into a shared-tally template");
                 for k in 0..a.len() {
-                    add_saturating(&sums.sum[start + k], shared_word(a[k], FRACTION_BITS - SHARED_SUM_BITS));
-                    add_saturating(&sums.sum2[start + k], shared_word(b[k], FRACTION_BITS - SHARED_SUM2_BITS));
+                    add_saturating(&sums.words[start + k][0], shared_word(a[k], FRACTION_BITS - SHARED_SUM_BITS));
+                    add_saturating(&sums.words[start + k][1], shared_word(b[k], FRACTION_BITS - SHARED_SUM2_BITS));
                 }
             }
         }
@@ -420,7 +428,7 @@ impl Tally {
     pub fn saturated_bins(&self) -> usize {
         match &self.store {
             Store::Dense { .. } => 0,
-            Store::Shared { sums, .. } => (0..sums.sum.len()).filter(|&i| { let (a, b) = sums.words(i); a == u64::MAX || b == u64::MAX }).count(),
+            Store::Shared { sums, .. } => (0..sums.words.len()).filter(|&i| { let (a, b) = sums.words(i); a == u64::MAX || b == u64::MAX }).count(),
         }
     }
 

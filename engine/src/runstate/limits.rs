@@ -12,7 +12,8 @@
 
 use crate::deck::{Geometry, ResolvedDeck, ScoreKind, VoxelContent};
 
-/// Bytes per tally bin per copy: two u128 sums, the pending f64 and the last-history u64.
+/// Bytes per tally bin per copy: two u128 sums (32 B, [`crate::score::tally::DENSE_BYTES_PER_BIN`])
+/// and 16 B for the raw copies made when a checkpoint or shard of dense tallies is written.
 pub const BYTES_PER_BIN: u64 = 48;
 pub use crate::score::tally::SHARED_BYTES_PER_BIN;
 /// Bytes per voxel of a voxel geometry (material index, density, lookup caches).

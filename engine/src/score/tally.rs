@@ -16,8 +16,10 @@
 //!
 //! Two stores hold the sums:
 //!
-//! - **Dense** (the default): each worker owns a full copy (48 bytes per bin: two 128-bit sums,
-//!   the open history's total and its index); copies are added at the end of a run.
+//! - **Dense** (the default): each worker owns a full copy of the sums (32 bytes per bin: two
+//!   128-bit sums) and gathers the current history's totals in a small hash table of the bins
+//!   it touched, folded into the sums when the next history starts (the same per-history totals,
+//!   in the same order, as a per-bin running total); copies are added at the end of a run.
 //! - **Shared** (voxel dose grids): one copy of the sums for the whole run, two 64-bit atomic
 //!   fixed-point words per bin (16 bytes), whatever the number of workers. Each worker gathers
 //!   the current history's totals in a small hash table of the bins it touched and, when the
@@ -46,7 +48,7 @@ const SHARED_SUM2_SCALE: f64 = (1u64 << SHARED_SUM2_BITS) as f64;
 /// Bytes per bin of a shared store.
 pub const SHARED_BYTES_PER_BIN: u64 = 16;
 /// Bytes per bin of a dense store, per copy.
-pub const DENSE_BYTES_PER_BIN: u64 = 48;
+pub const DENSE_BYTES_PER_BIN: u64 = 32;
 
 #[inline(always)]
 fn to_fixed(v: f64) -> u128 {
@@ -196,6 +198,22 @@ impl Pending {
         }
     }
 
+    /// Adds the open history's totals and their squares to dense 2⁻⁵⁰ fixed-point `sums` and
+    /// empties the table (a bin whose total is zero adds nothing).
+    fn fold_into_dense(&mut self, sums: &mut [[u128; 2]]) {
+        for &i in &self.used {
+            let i = i as usize;
+            let (key, c) = (self.keys[i], self.vals[i]);
+            if c != 0.0 {
+                let s = &mut sums[key as usize];
+                s[0] += to_fixed(c);
+                s[1] += to_fixed(c * c);
+            }
+            self.keys[i] = EMPTY_KEY;
+        }
+        self.used.clear();
+    }
+
     /// Adds the open history's totals and their squares to `sums` and empties the table.
     fn fold_into(&mut self, sums: &SharedSums) {
         let h = self.history;
@@ -217,9 +235,9 @@ impl Pending {
 
 #[derive(Debug, Clone)]
 enum Store {
-    /// Per bin: the sums [Σx, Σx²] (2⁻⁵⁰ fixed point) and, kept apart so that a score touches
-    /// one cache line, the open history's total and that history's number.
-    Dense { sums: Vec<[u128; 2]>, open: Vec<Open> },
+    /// Per bin the sums [Σx, Σx²] (2⁻⁵⁰ fixed point); the open history's totals in a small hash
+    /// table of the bins it touched (folded into the sums when the next history starts).
+    Dense { sums: Vec<[u128; 2]>, pending: Pending },
     Shared { sums: Arc<SharedSums>, pending: Pending },
 }
 
@@ -238,7 +256,8 @@ impl PartialEq for Tally {
 impl Tally {
     /// A zeroed dense tally of `bins` bins.
     pub fn new(bins: usize) -> Self {
-        Self { store: Store::Dense { sums: vec![[0; 2]; bins], open: vec![Open::EMPTY; bins] } }
+        assert!(bins < EMPTY_KEY as usize, "a dense tally holds fewer than 2³² − 1 bins");
+        Self { store: Store::Dense { sums: vec![[0; 2]; bins], pending: Pending::new() } }
     }
 
     /// A zeroed shared tally of `bins` bins (one copy of the sums for all workers).
@@ -293,13 +312,18 @@ impl Tally {
     #[inline(always)]
     pub fn add(&mut self, bin: usize, value: f64, history: u64) {
         match &mut self.store {
-            Store::Dense { sums, open } => {
-                let o = &mut open[bin];
-                if o.last != history {
-                    fold_dense(&mut sums[bin], o);
-                    o.last = history;
+            Store::Dense { sums, pending } => {
+                if pending.history != history {
+                    pending.fold_into_dense(sums);
+                    pending.history = history;
                 }
-                o.current += value;
+                debug_assert!(bin < sums.len());
+                if pending.add(bin as u32, value) {
+                    // Touch the bin's sums now, so their cache line is on its way before the fold.
+                    if let Some(w) = sums.get(bin) {
+                        std::hint::black_box(w[0]);
+                    }
+                }
             }
             Store::Shared { sums, pending } => {
                 if pending.history != history {
@@ -321,11 +345,9 @@ impl Tally {
     /// Folds every pending history total into the sums.
     pub fn flush(&mut self) {
         match &mut self.store {
-            Store::Dense { sums, open } => {
-                for (s, o) in sums.iter_mut().zip(open.iter_mut()) {
-                    fold_dense(s, o);
-                    o.last = NO_HISTORY;
-                }
+            Store::Dense { sums, pending } => {
+                pending.fold_into_dense(sums);
+                pending.history = NO_HISTORY;
             }
             Store::Shared { sums, pending } => {
                 pending.fold_into(sums);
@@ -413,7 +435,8 @@ impl Tally {
     pub fn from_raw(sum: Vec<u128>, sum2: Vec<u128>) -> Self {
         let n = sum.len();
         assert_eq!(n, sum2.len());
-        Self { store: Store::Dense { sums: sum.into_iter().zip(sum2).map(|(a, b)| [a, b]).collect(), open: vec![Open::EMPTY; n] } }
+        let _ = n;
+        Self { store: Store::Dense { sums: sum.into_iter().zip(sum2).map(|(a, b)| [a, b]).collect(), pending: Pending::new() } }
     }
 
     /// Replaces the sums by raw ones (format of [`Tally::raw`]), keeping the store kind.
@@ -549,28 +572,6 @@ impl BinStats {
             BinStatsStore::Shared(sums) => shared_bin_stats(sums, i, self.histories),
             BinStatsStore::Evaluated(v) => (v.0[i], v.1[i]),
         }
-    }
-}
-
-/// The open history of one dense bin: its running total and the history's number.
-#[derive(Debug, Clone, Copy)]
-struct Open {
-    current: f64,
-    last: u64,
-}
-
-impl Open {
-    const EMPTY: Open = Open { current: 0.0, last: NO_HISTORY };
-}
-
-/// Folds the open history's total of a dense bin into its sums.
-#[inline(always)]
-fn fold_dense(sums: &mut [u128; 2], o: &mut Open) {
-    let c = o.current;
-    if c != 0.0 {
-        sums[0] += to_fixed(c);
-        sums[1] += to_fixed(c * c);
-        o.current = 0.0;
     }
 }
 

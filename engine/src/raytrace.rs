@@ -126,8 +126,17 @@ pub fn for_each_piece(geometry: &Geometry, from: Vec3, dir: Vec3, mut f: impl Fn
             }
             // Each layer is crossed once per straight ray, plus the world: bounded by the layer count.
             let mut guard = 4 * (slabs.num_layers() + 4);
+            let mut been_in_stack = false;
             while !r.is_escaped() && guard > 0 {
                 guard -= 1;
+                // The stack is convex: a ray that has left it into a vacuum world meets nothing more.
+                if r.is_world() {
+                    if been_in_stack && slabs.material_of(r).is_none() {
+                        return;
+                    }
+                } else {
+                    been_in_stack = true;
+                }
                 let b = slabs.step(p, dir, r);
                 if !b.distance_cm.is_finite() {
                     return;
@@ -188,6 +197,58 @@ pub fn depth_to_exit(geometry: &Geometry, mu: &MuAt, from: Vec3, dir: Vec3) -> f
         true
     });
     tau
+}
+
+/// The media pieces of one ray, kept when there are few (slab problems), so that a point at a
+/// given optical depth is found without walking the ray again.
+pub struct RayPieces {
+    /// (material, μ in 1/cm, start, length) per piece, in order along the ray.
+    pieces: [(u16, f64, f64, f64); RayPieces::MAX],
+    count: usize,
+    /// More pieces than kept: walk the ray again.
+    overflow: bool,
+    /// Optical depth of the whole ray.
+    pub total: f64,
+}
+
+impl RayPieces {
+    /// Pieces kept.
+    pub const MAX: usize = 16;
+
+    /// The pieces and the whole optical depth of the ray from `from` along `dir` (μ/ρ from `mu`).
+    #[inline]
+    pub fn trace(geometry: &Geometry, mu: &MuAt, from: Vec3, dir: Vec3) -> Self {
+        let mut r = RayPieces { pieces: [(0, 0.0, 0.0, 0.0); Self::MAX], count: 0, overflow: false, total: 0.0 };
+        for_each_piece(geometry, from, dir, |m, rho, start, len| {
+            let mu_l = mu.mu_rho(m) * rho;
+            r.total += mu_l * len;
+            if r.count < Self::MAX {
+                r.pieces[r.count] = (m, mu_l, start, len);
+                r.count += 1;
+            } else {
+                r.overflow = true;
+            }
+            true
+        });
+        r
+    }
+
+    /// [`point_at_depth`] of the same ray, from the kept pieces when they are all there.
+    #[inline]
+    pub fn point_at_depth(&self, geometry: &Geometry, mu: &MuAt, from: Vec3, dir: Vec3, tau: f64) -> Option<(Vec3, u16)> {
+        if self.overflow {
+            return point_at_depth(geometry, mu, from, dir, tau);
+        }
+        let mut left = tau;
+        for &(m, mu_l, start, len) in &self.pieces[..self.count] {
+            let d = mu_l * len;
+            if d >= left && mu_l > 0.0 {
+                return Some((from + dir * (start + (left / mu_l).min(len)), m));
+            }
+            left -= d;
+        }
+        None
+    }
 }
 
 /// The point of the ray from `from` along `dir` where the optical depth (μ/ρ from `mu`)
@@ -292,6 +353,9 @@ kind = "interaction_counts"
                 }
                 let tau = rng.uniform() * total;
                 let (x, m) = point_at_depth(&p.geometry, &mu, from, dir, tau).expect("a depth below the total is reached");
+                let pieces = RayPieces::trace(&p.geometry, &mu, from, dir);
+                assert_eq!(pieces.total.to_bits(), total.to_bits(), "ray {i}: pieces' total");
+                assert_eq!(pieces.point_at_depth(&p.geometry, &mu, from, dir, tau), Some((x, m)), "ray {i}: point from the kept pieces");
                 let s = (x - from).norm_squared().sqrt();
                 let back = optical_depth(&p.geometry, &p.materials, from, dir, s, kev);
                 assert!((back - tau).abs() <= 1e-7 * total.max(1.0), "ray {i}: τ {tau} found at {s} cm where τ = {back}");

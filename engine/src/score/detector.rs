@@ -507,8 +507,17 @@ fn mass_thickness(geometry: &Geometry, n_materials: usize, from: Vec3, dir: Vec3
 fn trace_slabs(slabs: &dosemill_geometry::SlabStack, mut p: Vec3, mut r: dosemill_geometry::Region, dir: Vec3, length_cm: f64, out: &mut [f64; MAX_MATERIALS]) -> bool {
     let mut left = length_cm;
     let mut guard = 4 * (slabs.num_layers() + 4);
+    let mut been_in_stack = false;
     while left > 0.0 && !r.is_escaped() && guard > 0 {
         guard -= 1;
+        // The stack is convex: a ray that has left it into a vacuum world crosses nothing more.
+        if r.is_world() {
+            if been_in_stack && slabs.material_of(r).is_none() {
+                break;
+            }
+        } else {
+            been_in_stack = true;
+        }
         let b = slabs.step(p, dir, r);
         let s = b.distance_cm.min(left);
         if let Some((m, rho)) = slabs.material_of(r) {
@@ -814,7 +823,8 @@ impl DetectorScorer {
             return;
         }
         let mu = MuAt::new(&problem.materials, ph.kev);
-        let total = crate::raytrace::depth_to_exit(&problem.geometry, &mu, ph.pos, ph.dir);
+        let ray = crate::raytrace::RayPieces::trace(&problem.geometry, &mu, ph.pos, ph.dir);
+        let total = ray.total;
         if !(total > 0.0) {
             return;
         }
@@ -836,7 +846,7 @@ impl DetectorScorer {
             let t = (-(-u * norm).ln_1p() / beta).min(total);
             (t, (-(1.0 - beta) * t).exp() * norm / beta)
         };
-        let Some((pos, m)) = crate::raytrace::point_at_depth(&problem.geometry, &mu, ph.pos, ph.dir, t) else { return };
+        let Some((pos, m)) = ray.point_at_depth(&problem.geometry, &mu, ph.pos, ph.dir, t) else { return };
         let at = PhotonView { pos, weight: ph.weight * collisions, ..*ph };
         let Some(weight) = self.roulette(problem, &at, &mu_e, &mut rng) else { return };
         // A photoelectric collision there (probability P^pe) emits fluorescence: drawn with

@@ -472,15 +472,14 @@ fn mu_all(materials: &[MaterialXs], kev: f64, out: &mut [f64; MAX_MATERIALS]) {
     }
 }
 
-/// Mass thickness (g/cm²) per material along a segment, for the slab tracer; returns false when
-/// the geometry has no fast path (then the caller traces per energy).
+/// Mass thickness (g/cm²) per material along a segment (one walk serves every energy); returns
+/// false when there are more materials than it holds (then the caller traces per energy).
 #[inline]
 fn mass_thickness(geometry: &Geometry, n_materials: usize, from: Vec3, dir: Vec3, length_cm: f64, out: &mut [f64; MAX_MATERIALS]) -> bool {
     if n_materials > MAX_MATERIALS {
         return false;
     }
     out[..n_materials].iter_mut().for_each(|v| *v = 0.0);
-    #[allow(unreachable_patterns)]
     match geometry {
         Geometry::Slabs(slabs) => {
             let mut p = from;
@@ -499,7 +498,20 @@ fn mass_thickness(geometry: &Geometry, n_materials: usize, from: Vec3, dir: Vec3
             }
             trace_slabs(slabs, p, r, dir, length_cm, out)
         }
-        _ => false,
+        Geometry::Voxels(world) => {
+            // As `raytrace::optical_depth`: the world medium outside the grid, then the voxels.
+            let grid = &*world.grid;
+            if let Some(medium) = grid.world().medium {
+                let clip = |c: Option<dosemill_geometry::Chord>| c.map_or(0.0, |c| (c.exit_cm.min(length_cm) - c.enter_cm.max(0.0)).max(0.0));
+                let outside = (clip(grid.world().bounds.chord(from, dir)) - clip(grid.bounds().chord(from, dir))).max(0.0);
+                out[medium.material as usize] += medium.density_g_cm3 * outside;
+            }
+            for seg in grid.walk(from, dir, length_cm) {
+                let (m, rho) = grid.voxel_medium(seg.index);
+                out[m as usize] += rho * seg.length_cm;
+            }
+            true
+        }
     }
 }
 

@@ -72,7 +72,8 @@ impl Stream {
             let b = 2.0 * self.uniform() - 1.0;
             let r2 = a * a + b * b;
             if r2 <= 1.0 && r2 > 1e-300 {
-                return ((a * a - b * b) / r2, 2.0 * a * b / r2);
+                let inv = 1.0 / r2;
+                return ((a * a - b * b) * inv, 2.0 * a * b * inv);
             }
         }
     }

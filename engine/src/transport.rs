@@ -500,7 +500,7 @@ impl Problem {
             Interaction::Photoelectric => {
                 let mut local = p.kev;
                 if self.options.fluorescence {
-                    let shell = photoelectric::sample_shell(p.kev, c.element, rng);
+                    let shell = photoelectric::sample_shell_ln(p.kev, p.ln_kev, c.element, rng);
                     let emitted = fluorescence::cascade(c.element, shell, rng);
                     for &line in &emitted.kev[..emitted.count] {
                         if line >= self.options.cutoff_kev && *depth < STACK_DEPTH {

@@ -245,6 +245,8 @@ pub struct Element {
     inv_dln_x: Vec<f64>,
     ln_x_first: f64,
     x_intervals_per_ln: f64,
+    /// Interval of the x grid at or below each bucket of `x_bucket_index` (see [`x_bucket_of`]).
+    x_bucket_first: Vec<u32>,
     form_factor: ScatterFunction,
     incoherent_function: ScatterFunction,
     shells: [ShellData; 4],
@@ -286,7 +288,12 @@ impl Element {
     #[inline]
     fn locate(&self, kev: f64) -> (usize, f64) {
         let kev = kev.clamp(E_MIN_KEV, E_MAX_KEV);
-        let ln_e = kev.ln();
+        self.locate_ln(kev, kev.ln())
+    }
+
+    /// [`Element::locate`] for an energy inside 1–800 keV whose logarithm `ln_e` is known.
+    #[inline]
+    fn locate_ln(&self, kev: f64, ln_e: f64) -> (usize, f64) {
         let bucket = (((ln_e - self.ln_e_min) * self.buckets_per_ln) as usize).min(self.bucket_first.len() - 1);
         let mut i = self.bucket_first[bucket] as usize;
         let last = self.nodes_kev.len() - 2;
@@ -307,17 +314,11 @@ impl Element {
     #[inline]
     pub fn interaction(&self, kev: f64) -> Interaction {
         let (i, t) = self.locate(kev);
-        let (a, b) = (self.shares[i], self.shares[i + 1]);
         Interaction {
             photo_cm2_g: Self::log_log(&self.ln_photo, i, t),
             coherent_cm2_g: Self::log_log(&self.ln_coherent, i, t),
             incoherent_cm2_g: Self::log_log(&self.ln_incoherent, i, t),
-            photo_shell_shares: [
-                a[0] + t * (b[0] - a[0]),
-                a[1] + t * (b[1] - a[1]),
-                a[2] + t * (b[2] - a[2]),
-                a[3] + t * (b[3] - a[3]),
-            ],
+            photo_shell_shares: self.shares_at(i, t),
         }
     }
 
@@ -360,7 +361,21 @@ impl Element {
     /// data's jump ([`Element::edges_kev`]), which may lie a few eV below the binding energy
     /// [`ShellData::edge_kev`]: a photoelectron energy E − edge_kev must be clamped at 0.
     pub fn photo_shell_shares(&self, kev: f64) -> [f64; 4] {
-        self.interaction(kev).photo_shell_shares
+        let (i, t) = self.locate(kev);
+        self.shares_at(i, t)
+    }
+    /// [`Element::photo_shell_shares`] given also `ln_kev`, the natural logarithm of `kev`
+    /// (`kev.ln()`, as a photon carries it): the same values bit for bit, without computing the
+    /// logarithm again (energies outside 1–800 keV fall back to the clamped lookup).
+    #[inline]
+    pub fn photo_shell_shares_ln(&self, kev: f64, ln_kev: f64) -> [f64; 4] {
+        let (i, t) = if (E_MIN_KEV..=E_MAX_KEV).contains(&kev) { self.locate_ln(kev, ln_kev) } else { self.locate(kev) };
+        self.shares_at(i, t)
+    }
+    #[inline]
+    fn shares_at(&self, i: usize, t: f64) -> [f64; 4] {
+        let (a, b) = (self.shares[i], self.shares[i + 1]);
+        [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1]), a[2] + t * (b[2] - a[2]), a[3] + t * (b[3] - a[3])]
     }
     /// Energy nodes of this element's cross-section grid (keV), ascending; each edge appears twice.
     pub fn nodes_kev(&self) -> &[f64] {
@@ -415,6 +430,41 @@ impl Element {
         k
     }
 
+    /// [`Element::locate_x`] without a logarithm: the bucket of x's floating-point exponent and
+    /// leading mantissa bits gives an interval at or below x, then a short forward step. Same
+    /// result as `locate_x` (the interval k with x[k] ≤ x < x[k+1]); for x[1] ≤ x < x_last.
+    #[inline]
+    fn locate_x_bits(&self, x: f64) -> usize {
+        let n = self.x_nodes.len();
+        let b = x_bucket_of(x, self.x_nodes[1]).min(self.x_bucket_first.len() - 1);
+        let mut k = self.x_bucket_first[b] as usize;
+        while k + 2 < n && self.x_nodes[k + 1] <= x {
+            k += 1;
+        }
+        k
+    }
+
+    /// Whether `f(x) ≥ level`, exactly as `scatter_value(f, x) >= level`, mostly without
+    /// evaluating f: between nodes the interpolant (log-log or linear) lies between the two node
+    /// values, so a level clearly below both or clearly above both decides (the margin covers
+    /// the rounding of the interpolation); otherwise f is evaluated.
+    #[inline]
+    fn scatter_at_least(&self, f: &ScatterFunction, x: f64, level: f64) -> bool {
+        let n = self.x_nodes.len();
+        if x > 0.0 && x >= self.x_nodes[1] && x < self.x_nodes[n - 1] {
+            let k = self.locate_x_bits(x);
+            let (a, b) = (f.values[k], f.values[k + 1]);
+            let (lo, hi) = if a <= b { (a, b) } else { (b, a) };
+            if level < lo * (1.0 - SQUEEZE_MARGIN) {
+                return true;
+            }
+            if level > hi * (1.0 + SQUEEZE_MARGIN) {
+                return false;
+            }
+        }
+        self.scatter_value(f, x) >= level
+    }
+
     /// F or S at x, clamped to [0, Z] (log-log interpolation between nodes equal to Z could
     /// exceed Z in the last bit).
     #[inline]
@@ -454,6 +504,19 @@ impl Element {
     /// S(0) = 0; values above Z (a slight overshoot at large x) are stored as Z.
     pub fn incoherent_function(&self, x_inv_angstrom: f64) -> f64 {
         self.scatter_value(&self.incoherent_function, x_inv_angstrom)
+    }
+    /// Whether S(x, Z) ≥ `level`: the same answer as `incoherent_function(x) >= level`, bit for
+    /// bit, but S is only evaluated when `level` falls between the values at the two nodes
+    /// around x (a rejection test on S needs no logarithm or exponential otherwise).
+    #[inline]
+    pub fn incoherent_function_at_least(&self, x_inv_angstrom: f64, level: f64) -> bool {
+        self.scatter_at_least(&self.incoherent_function, x_inv_angstrom, level)
+    }
+    /// Whether F(x, Z) ≥ `level`, as `form_factor(x) >= level` (see
+    /// [`Element::incoherent_function_at_least`]).
+    #[inline]
+    pub fn form_factor_at_least(&self, x_inv_angstrom: f64, level: f64) -> bool {
+        self.scatter_at_least(&self.form_factor, x_inv_angstrom, level)
     }
     /// The momentum-transfer nodes (1/Å) on which F and S are tabulated, ascending, first node 0.
     pub fn x_nodes_inv_angstrom(&self) -> &[f64] {
@@ -549,6 +612,7 @@ impl ElementTable {
         let inv_dln_x: Vec<f64> = (0..n_x - 1)
             .map(|i| if i == 0 { 0.0 } else { 1.0 / (ln_x[i + 1] - ln_x[i]) })
             .collect();
+        let x_bucket_first = x_bucket_table(&x_nodes);
         let ln_e_min = e_min.ln();
         let n_buckets = n_intervals * BUCKETS_PER_INTERVAL;
         let buckets_per_ln = n_buckets as f64 / (e_max.ln() - ln_e_min);
@@ -673,6 +737,7 @@ impl ElementTable {
                 inv_dln_x: inv_dln_x.clone(),
                 ln_x_first,
                 x_intervals_per_ln,
+                x_bucket_first: x_bucket_first.clone(),
                 shells,
                 line_labels,
             });
@@ -682,6 +747,42 @@ impl ElementTable {
         }
         Ok(ElementTable { elements, provenance })
     }
+}
+
+/// Relative margin of the node-value bounds in [`Element::scatter_at_least`]: far above the
+/// rounding of one interpolation (a few 1e-16 relative), so a decision by the bounds is always
+/// the decision of the evaluated function.
+const SQUEEZE_MARGIN: f64 = 1e-12;
+/// Leading mantissa bits used by [`x_bucket_of`]: 2⁶ buckets per octave of x.
+const X_BUCKET_MANTISSA_BITS: u32 = 6;
+
+/// Bucket of x > 0 relative to `x_first` (the first positive node): the floating-point exponent
+/// and the leading mantissa bits of x, minus those of `x_first`; monotone in x, 0 below x_first.
+#[inline]
+fn x_bucket_of(x: f64, x_first: f64) -> usize {
+    let shift = 52 - X_BUCKET_MANTISSA_BITS;
+    ((x.to_bits() >> shift) as usize).saturating_sub((x_first.to_bits() >> shift) as usize)
+}
+
+/// For each bucket of [`x_bucket_of`] from x[1] to x_last: the last interval k ≥ 1 whose start
+/// x[k] lies in an earlier or the same bucket and at or below the bucket's smallest x. Every x of the
+/// bucket then lies at or above x[k].
+fn x_bucket_table(x: &[f64]) -> Vec<u32> {
+    let n = x.len();
+    let n_buckets = x_bucket_of(x[n - 1], x[1]) + 1;
+    let shift = 52 - X_BUCKET_MANTISSA_BITS;
+    let first_bits = (x[1].to_bits() >> shift) << shift;
+    let mut table = Vec::with_capacity(n_buckets);
+    let mut k = 1usize;
+    for b in 0..n_buckets {
+        // Smallest f64 of bucket b (bucket 0 starts at x[1] itself).
+        let start = if b == 0 { x[1] } else { f64::from_bits(first_bits + ((b as u64) << shift)) };
+        while k + 2 < n && x[k + 1] <= start {
+            k += 1;
+        }
+        table.push(k as u32);
+    }
+    table
 }
 
 /// Little-endian reader over the table bytes.
@@ -741,4 +842,59 @@ pub fn elements() -> &'static ElementTable {
             .unwrap_or_else(|e| panic!("embedded xsdata/data/provenance.toml: {e}"));
         ElementTable::parse(embedded_table_bytes(), provenance).unwrap_or_else(|e| panic!("embedded xsdata/data/elements.bin: {e}"))
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The logarithm-free interval search finds the interval of the logarithmic one, at every
+    /// node, just beside every node and at 200,000 spread values of x.
+    #[test]
+    fn bit_bucket_search_finds_the_same_interval() {
+        let el = elements().get(8).unwrap();
+        let x = el.x_nodes_inv_angstrom();
+        let last = x[x.len() - 1];
+        let mut probes: Vec<f64> = Vec::new();
+        for &node in &x[1..x.len() - 1] {
+            probes.extend([node, f64::from_bits(node.to_bits() - 1), f64::from_bits(node.to_bits() + 1)]);
+        }
+        let (l0, l1) = (x[1].ln(), last.ln());
+        for i in 0..200_000 {
+            probes.push((l0 + (l1 - l0) * (i as f64 + 0.5) / 200_000.0).exp());
+        }
+        for p in probes.into_iter().filter(|p| *p >= x[1] && *p < last) {
+            let k = el.locate_x_bits(p);
+            assert!(x[k] <= p && p < x[k + 1], "x = {p}: interval {k}");
+            assert_eq!(k, el.locate_x(p), "x = {p}");
+        }
+    }
+
+    /// `incoherent_function_at_least` / `form_factor_at_least` answer exactly as comparing the
+    /// evaluated function, for levels spread over [0, Z] and levels within a few ulps of the
+    /// value itself (H, O, Ca, Pb; x over the whole grid and beyond its ends).
+    #[test]
+    fn bound_tests_agree_with_the_evaluated_function() {
+        let mut state = 12345u64;
+        let mut uniform = || {
+            state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (state >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for z in [1, 8, 20, 82] {
+            let el = elements().get(z).unwrap();
+            let zf = z as f64;
+            for _ in 0..100_000 {
+                let x = if uniform() < 0.02 { uniform() * 1e-3 } else { (uniform() * 1.1 * (200f64 / 1e-3).ln()).exp() * 1e-3 };
+                let s = el.incoherent_function(x);
+                let f = el.form_factor(x);
+                for (value, test) in [(s, 0u8), (f, 1u8)] {
+                    let nudge = f64::from_bits(value.to_bits().saturating_add((uniform() * 5.0) as u64));
+                    for level in [uniform() * zf, value, nudge, value * (1.0 - 1e-13), value * (1.0 + 1e-13)] {
+                        let fast = if test == 0 { el.incoherent_function_at_least(x, level) } else { el.form_factor_at_least(x, level) };
+                        assert_eq!(fast, value >= level, "Z={z} x={x} level={level} value={value}");
+                    }
+                }
+            }
+        }
+    }
 }

@@ -28,8 +28,9 @@ pub fn sample(kev: f64, element: &Element, bound: bool, rng: &mut crate::rng::St
     let z = element.z as f64;
     loop {
         let (ratio, cos_theta) = klein_nishina::sample(kev, rng);
-        let s = element.incoherent_function(momentum_transfer(kev, cos_theta));
-        if rng.uniform() * z <= s {
+        // Accept with probability S(x,Z)/Z: the test `r·Z ≤ S(x)`, decided from the tabulated
+        // neighbours of x where they suffice (bit for bit the same decision).
+        if element.incoherent_function_at_least(momentum_transfer(kev, cos_theta), rng.uniform() * z) {
             return (ratio, cos_theta);
         }
     }

@@ -47,22 +47,27 @@ pub fn mean_energy_transfer_fraction(kev: f64) -> f64 {
 pub fn sample(kev: f64, rng: &mut crate::rng::Stream) -> (f64, f64) {
     let k = kev / ELECTRON_REST_KEV;
     let a = 1.0 + 2.0 * k;
+    let inv_a = 1.0 / a;
     let branch = a / (9.0 + 2.0 * k);
+    // With η = E/E' and cos θ = 1 − (η − 1)/k, both branches are written with one division
+    // per trial: branch 1 has η = 1 + 2k·r₂, so cos θ = 1 − 2r₂; branch 2 has η = a/d with
+    // d = 1 + 2k·r₂, so E'/E = d/a and cos θ = 1 − 2(1 − r₂)/d (the same algebra, rounded
+    // differently).
     loop {
         let r1 = rng.uniform();
         let r2 = rng.uniform();
         let r3 = rng.uniform();
         if r1 <= branch {
-            let eta = 1.0 + 2.0 * k * r2; // E/E'
-            if r3 <= 4.0 * (1.0 / eta - 1.0 / (eta * eta)) {
-                let cos_theta = 1.0 - (eta - 1.0) / k;
-                return (1.0 / eta, cos_theta);
+            let ratio = 1.0 / (1.0 + 2.0 * k * r2); // E'/E = 1/η
+            if r3 <= 4.0 * ratio * (1.0 - ratio) {
+                return (ratio, 1.0 - 2.0 * r2);
             }
         } else {
-            let eta = a / (1.0 + 2.0 * k * r2);
-            let cos_theta = 1.0 - (eta - 1.0) / k;
-            if r3 <= 0.5 * (cos_theta * cos_theta + 1.0 / eta) {
-                return (1.0 / eta, cos_theta);
+            let d = 1.0 + 2.0 * k * r2;
+            let ratio = d * inv_a;
+            let cos_theta = 1.0 - 2.0 * (1.0 - r2) / d;
+            if r3 <= 0.5 * (cos_theta * cos_theta + ratio) {
+                return (ratio, cos_theta);
             }
         }
     }

@@ -63,6 +63,8 @@ pub struct MaterialXs {
     channels: usize,
     /// ln of the total μ/ρ per node.
     ln_total: Vec<f64>,
+    /// The total μ/ρ per node, exp(ln_total).
+    total: Vec<f64>,
     /// Cumulative channel shares, node-major: `share_cum[node * channels + j]`.
     share_cum: Vec<f64>,
 }
@@ -165,6 +167,7 @@ impl MaterialXs {
             ln_e0,
             inv_step: 1.0 / step,
             channels,
+            total: ln_total.iter().map(|l| l.exp()).collect(),
             ln_total,
             share_cum,
         })
@@ -189,9 +192,25 @@ impl MaterialXs {
         self.lookup_ln(kev.ln())
     }
 
-    /// Total μ/ρ (cm²/g) at a looked-up energy.
+    /// Total μ/ρ (cm²/g) at a looked-up energy: the log-log interpolation
+    /// exp(ln μ_i + t (ln μ_{i+1} − ln μ_i)), evaluated as μ_i · exp(s), s = t (ln μ_{i+1} − ln μ_i),
+    /// with exp(s) a Taylor polynomial where |s| ≤ 1/32 (truncation below 1e-19, so within a few
+    /// 1e-16 of the library exponential; tested) and the library exponential elsewhere.
     #[inline(always)]
     pub fn mu_rho_at(&self, at: Lookup) -> f64 {
+        let (a, b) = (self.ln_total[at.i], self.ln_total[at.i + 1]);
+        let s = at.t * (b - a);
+        if s.abs() <= 1.0 / 32.0 {
+            self.total[at.i] * exp_small(s)
+        } else {
+            (a + s).exp()
+        }
+    }
+
+    /// μ/ρ by the library exponential of the interpolated logarithm (the reference for
+    /// [`Self::mu_rho_at`]).
+    #[cfg(test)]
+    fn mu_rho_at_reference(&self, at: Lookup) -> f64 {
         let (a, b) = (self.ln_total[at.i], self.ln_total[at.i + 1]);
         (a + at.t * (b - a)).exp()
     }
@@ -254,6 +273,22 @@ impl MaterialXs {
     }
 }
 
+/// exp(s) for |s| ≤ 1/32: Taylor polynomial to s⁸ (remainder below s⁹/9! < 8e-20), evaluated
+/// in Estrin's scheme.
+#[inline(always)]
+fn exp_small(s: f64) -> f64 {
+    const C: [f64; 9] = [1.0, 1.0, 1.0 / 2.0, 1.0 / 6.0, 1.0 / 24.0, 1.0 / 120.0, 1.0 / 720.0, 1.0 / 5040.0, 1.0 / 40320.0];
+    let s2 = s * s;
+    let s4 = s2 * s2;
+    let p01 = C[0] + C[1] * s;
+    let p23 = C[2] + C[3] * s;
+    let p45 = C[4] + C[5] * s;
+    let p67 = C[6] + C[7] * s;
+    let lo = p01 + p23 * s2;
+    let hi = p45 + p67 * s2 + C[8] * s4;
+    lo + hi * s4
+}
+
 const KINDS: [Interaction; 3] = [Interaction::Photoelectric, Interaction::Incoherent, Interaction::Coherent];
 
 /// Mass cross section (cm²/g) of one element and interaction under the physics switches.
@@ -280,6 +315,32 @@ pub fn element_partial(element: &Element, kind: Interaction, kev: f64, options: 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The polynomial form of the log-log interpolation of the total agrees with the library
+    /// exponential of the interpolated logarithm to 4e-15 relative (a few ulps; statistics of
+    /// any run are many orders coarser) at 200,000 energies over 1–800 keV and beside every node,
+    /// for water, a bone-like mixture and lead; and most lookups take the polynomial.
+    #[test]
+    fn polynomial_total_matches_the_exponential() {
+        let options = PhysicsOptions::default();
+        let mixes: [&[(u32, f64)]; 3] = [&[(1, 0.111894), (8, 0.888106)], &[(1, 0.034), (6, 0.155), (8, 0.435), (15, 0.103), (20, 0.225), (12, 0.048)], &[(82, 1.0)]];
+        for comp in mixes {
+            let m = MaterialXs::new("m", 1.0, comp, &options).unwrap();
+            let mut energies: Vec<f64> = (0..200_000).map(|k| (800f64.ln() * (k as f64 + 0.5) / 200_000.0).exp()).collect();
+            for e in m.nodes_kev() {
+                energies.extend([e * (1.0 - 1e-12), e, e * (1.0 + 1e-12)]);
+            }
+            let mut fast = 0usize;
+            for kev in energies.into_iter().filter(|e| (E_MIN_KEV..=E_MAX_KEV).contains(e)) {
+                let at = m.lookup(kev);
+                let (a, b) = (m.ln_total[at.i], m.ln_total[at.i + 1]);
+                fast += usize::from((at.t * (b - a)).abs() <= 1.0 / 32.0);
+                let (got, want) = (m.mu_rho_at(at), m.mu_rho_at_reference(at));
+                assert!((got / want - 1.0).abs() < 4e-15, "{kev} keV: {got} vs {want}");
+            }
+            assert!(fast > 190_000, "polynomial used for only {fast} lookups");
+        }
+    }
 
     /// The interpolated channel shares agree with the ratio of the element data's own (log-log
     /// interpolated) partial cross sections within 1e-4 absolute, and the total within 1e-4

@@ -205,7 +205,8 @@ pub fn summarise(det: &DetectorScorer, histories: u64, fdd_cm: f64) -> Result<Im
     if !(sc.value > 0.0) {
         return Err(DosimetryError::NoScore("no scattered photon reached the detector ROI; raise the histories".into()));
     }
-    let spr = sc.scale(1.0 / pd);
+    // Divided, not scaled by 1/pd: the correctly rounded quotient, as the other ratios here.
+    let spr = Estimate::new(sc.value / pd, sc.sigma / pd);
     let spr_mc = Estimate::new(s.spr_roi.0, s.spr_roi.1);
     let t = sc.value + pd;
     let sf = Estimate::new(sc.value / t, pd * sc.sigma / (t * t));
@@ -218,7 +219,7 @@ pub fn summarise(det: &DetectorScorer, histories: u64, fdd_cm: f64) -> Result<Im
         let (p0, s0) = (pd_ng, sng.value);
         let k = tp * (p0 + s0) / (tp * p0 + ts.value * s0);
         let dk = k * s0 * ts.sigma / (tp * p0 + ts.value * s0);
-        GridFigures { spr_no_grid: sng.scale(1.0 / pd_ng), primary_transmission: Estimate::exact(tp), scatter_transmission: ts, contrast_improvement_factor: Estimate::new(k, dk) }
+        GridFigures { spr_no_grid: Estimate::new(sng.value / pd_ng, sng.sigma / pd_ng), primary_transmission: Estimate::exact(tp), scatter_transmission: ts, contrast_improvement_factor: Estimate::new(k, dk) }
     });
     Ok(ImagingResult { fdd_cm, spr, spr_mc_primary: spr_mc, scatter_fraction: sf, primary_mc_over_deterministic: pmc, grid, histories, deck: None })
 }

@@ -54,7 +54,10 @@ pub const DENSE_BYTES_PER_BIN: u64 = 32;
 fn to_fixed(v: f64) -> u128 {
     // Scores are non-negative; a negative value would be a bug upstream.
     debug_assert!(v >= 0.0, "negative score contribution {v}");
-    (v * SCALE + 0.5) as u128
+    let x = v * SCALE + 0.5;
+    // Below 2⁶⁴ the conversion through u64 truncates exactly as the direct one (which is a
+    // library call on x86-64); larger values take the direct conversion.
+    if x < 18_446_744_073_709_551_616.0 { x as u64 as u128 } else { x as u128 }
 }
 
 #[inline(always)]

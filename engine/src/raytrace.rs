@@ -90,6 +90,12 @@ impl<'a> MuAt<'a> {
         MuAt { materials, ln_kev, first }
     }
 
+    /// μ/ρ of the first [`MuAt::TABLED`] materials (0 past the last material).
+    #[inline]
+    pub fn tabled(&self) -> &[f64; MuAt::TABLED] {
+        &self.first
+    }
+
     /// μ/ρ of material `m` (cm²/g).
     #[inline]
     pub fn mu_rho(&self, m: u16) -> f64 {

@@ -267,19 +267,9 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
             let (mut lo, mut hi) = (gb.min_cm.min(src), gb.max_cm.max(src));
             for sc in &d.scores {
                 if let deck::ScoreKind::Detector(det) = &sc.kind {
-                    let n = match det.normal_axis {
-                        deck::Axis::X => 0,
-                        deck::Axis::Y => 1,
-                        deck::Axis::Z => 2,
-                    };
                     let c = vec3(det.position_cm);
-                    let mut half = Vec3::new(0.0, 0.0, 0.0);
-                    let (u, v) = match n {
-                        0 => (1, 2),
-                        1 => (0, 2),
-                        _ => (0, 1),
-                    };
-                    half = half.with_axis(u, 0.5 * det.size_cm[0]).with_axis(v, 0.5 * det.size_cm[1]);
+                    let (u, v) = crate::score::detector::face_axes(det.normal_axis.index());
+                    let half = Vec3::new(0.0, 0.0, 0.0).with_axis(u, 0.5 * det.size_cm[0]).with_axis(v, 0.5 * det.size_cm[1]);
                     lo = lo.min(c - half);
                     hi = hi.max(c + half);
                 }
@@ -334,7 +324,7 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
                 let air = library::lookup("air").map_err(|e| err(&key, e.to_string()))?;
                 air.absorption_table().map_err(|e| err(&key, e.to_string()))?;
                 Scorer::AirKerma {
-                    axis: match normal_axis { deck::Axis::X => 0, deck::Axis::Y => 1, deck::Axis::Z => 2 },
+                    axis: normal_axis.index(),
                     center_cm: vec3(*position_cm),
                     radius_cm: *radius_cm,
                     air: std::sync::Arc::new(air),

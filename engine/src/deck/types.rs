@@ -393,6 +393,15 @@ impl Axis {
             Axis::Z => "z",
         }
     }
+
+    /// 0, 1 or 2.
+    pub fn index(self) -> usize {
+        match self {
+            Axis::X => 0,
+            Axis::Y => 1,
+            Axis::Z => 2,
+        }
+    }
 }
 
 /// `[[score]]`.

@@ -28,48 +28,21 @@ pub struct DatasetStats {
 impl DatasetStats {
     /// Figures of `values` (row-major, `shape`) with optional 1σ absolute uncertainties.
     pub fn compute(values: &[f64], shape: &[usize], sigma: Option<&[f64]>) -> Self {
-        let total = values.iter().sum();
-        let mut best: Option<(usize, f64)> = None;
-        for (i, &v) in values.iter().enumerate() {
-            if !v.is_nan() && best.is_none_or(|(_, b)| v > b) {
-                best = Some((i, v));
+        fn from(v: &[f64]) -> impl Fn(usize, &mut [f64]) -> bool + '_ {
+            move |start, out| {
+                out.copy_from_slice(&v[start..start + out.len()]);
+                true
             }
         }
-        let peak = best.map(|(_, v)| v);
-        let peak_index = best.map(|(i, _)| unravel(i, shape)).unwrap_or_default();
         let sigma = sigma.filter(|s| s.len() == values.len());
-        let rel_sigma_at_peak = match (best, sigma) {
-            (Some((i, v)), Some(s)) if v != 0.0 => Some(s[i] / v.abs()),
-            _ => None,
-        };
-        let mean_rel_sigma_high = match (peak, sigma) {
-            (Some(p), Some(s)) if p > 0.0 => {
-                let (sum, n) = values
-                    .iter()
-                    .zip(s)
-                    .filter(|(&v, _)| v >= 0.5 * p)
-                    .fold((0.0, 0usize), |(acc, n), (&v, &e)| (acc + e / v, n + 1));
-                Some((sum / n as f64, n))
-            }
-            _ => None,
-        };
-        DatasetStats {
-            total,
-            peak,
-            peak_index,
-            rel_sigma_at_peak,
-            mean_rel_sigma_high,
-        }
+        Self::from_blocks(values.len(), shape, from(values), sigma.map(from)).expect("slices always fill")
     }
-}
 
-impl DatasetStats {
     /// [`DatasetStats::compute`] over data read block by block (a lazily read dataset), with
-    /// the same results bit for bit: two passes of [`crate::output::Produced::BLOCK`] elements.
+    /// the same results bit for bit; `None` for data that is not numeric.
     pub fn compute_data(values: &DataBuf, shape: &[usize], sigma: Option<&DataBuf>) -> Option<Self> {
-        let n = values.len();
-        let fill = |d: &DataBuf, start: usize, out: &mut [f64]| -> bool {
-            match d {
+        fn from(d: &DataBuf) -> impl Fn(usize, &mut [f64]) -> bool + '_ {
+            move |start, out| match d {
                 DataBuf::Produced(p) => {
                     p.fill(start, out);
                     true
@@ -80,16 +53,23 @@ impl DatasetStats {
                 }
                 _ => false,
             }
-        };
-        let sigma = sigma.filter(|s| s.len() == n);
+        }
+        let sigma = sigma.filter(|s| s.len() == values.len());
+        Self::from_blocks(values.len(), shape, from(values), sigma.map(from))
+    }
+
+    /// The figures of `n` values read by `values(start, block)` (and their σ by `sigma`) in two
+    /// passes of [`crate::output::Produced::BLOCK`] elements; sums run in element order.
+    fn from_blocks(n: usize, shape: &[usize], values: impl Fn(usize, &mut [f64]) -> bool, sigma: Option<impl Fn(usize, &mut [f64]) -> bool>) -> Option<Self> {
         let block = crate::output::Produced::BLOCK;
         let (mut vb, mut sb) = (vec![0.0; block.min(n)], vec![0.0; block.min(n)]);
-        let mut total = 0.0;
+        // -0.0 as `Iterator::sum` starts.
+        let mut total = -0.0;
         let mut best: Option<(usize, f64)> = None;
         let mut start = 0;
         while start < n {
             let k = block.min(n - start);
-            if !fill(values, start, &mut vb[..k]) {
+            if !values(start, &mut vb[..k]) {
                 return None;
             }
             for (j, &v) in vb[..k].iter().enumerate() {
@@ -102,20 +82,20 @@ impl DatasetStats {
         }
         let peak = best.map(|(_, v)| v);
         let peak_index = best.map(|(i, _)| unravel(i, shape)).unwrap_or_default();
-        let rel_sigma_at_peak = match (best, sigma) {
+        let rel_sigma_at_peak = match (best, &sigma) {
             (Some((i, v)), Some(s)) if v != 0.0 => {
                 let mut one = [0.0];
-                fill(s, i, &mut one).then(|| one[0] / v.abs())
+                s(i, &mut one).then(|| one[0] / v.abs())
             }
             _ => None,
         };
-        let mean_rel_sigma_high = match (peak, sigma) {
+        let mean_rel_sigma_high = match (peak, &sigma) {
             (Some(p), Some(s)) if p > 0.0 => {
                 let (mut sum, mut count) = (0.0, 0usize);
                 let mut start = 0;
                 while start < n {
                     let k = block.min(n - start);
-                    if !(fill(values, start, &mut vb[..k]) && fill(s, start, &mut sb[..k])) {
+                    if !(values(start, &mut vb[..k]) && s(start, &mut sb[..k])) {
                         return None;
                     }
                     for (&v, &e) in vb[..k].iter().zip(&sb[..k]) {

@@ -174,7 +174,7 @@ pub mod summary {
 /// Most elements in a material for forced detection.
 pub const MAX_COMPONENTS: usize = 16;
 /// Most materials in a problem for the fast per-material path tracer (more: per-energy tracing).
-const MAX_MATERIALS: usize = 16;
+const MAX_MATERIALS: usize = MuAt::TABLED;
 /// Longest energy sub-bin of the deterministic primary (keV).
 const PRIMARY_SUB_BIN_KEV: f64 = 0.5;
 /// Sub-pixel points per axis of the deterministic primary in pixels the field edge crosses.
@@ -466,10 +466,7 @@ impl PartialEq for DetectorScorer {
 /// Linear attenuation (1/cm) of each problem material at one energy.
 #[inline]
 fn mu_all(materials: &[MaterialXs], kev: f64, out: &mut [f64; MAX_MATERIALS]) {
-    let ln = kev.ln();
-    for (m, t) in materials.iter().enumerate().take(MAX_MATERIALS) {
-        out[m] = t.mu_rho_at(t.lookup_ln(ln));
-    }
+    *out = *MuAt::new(materials, kev).tabled();
 }
 
 /// Mass thickness (g/cm²) per material along a segment (one walk serves every energy); returns
@@ -545,6 +542,15 @@ fn trace_slabs(slabs: &dosemill_geometry::SlabStack, mut p: Vec3, mut r: dosemil
     true
 }
 
+/// The in-plane axes (u, v) of a face normal to axis `n`.
+pub fn face_axes(n: usize) -> (usize, usize) {
+    match n {
+        0 => (1, 2),
+        1 => (0, 2),
+        _ => (0, 1),
+    }
+}
+
 /// Solid angle (sr) of a field as seen from a point source at `d` on its axis.
 fn field_solid_angle(field: &Field, d: f64) -> f64 {
     match *field {
@@ -607,11 +613,7 @@ impl DetectorScorer {
         if n > 2 {
             return Err(invalid(format!("normal axis {n} is not 0 (x), 1 (y) or 2 (z)")));
         }
-        let (u_axis, v_axis) = match n {
-            0 => (1, 2),
-            1 => (0, 2),
-            _ => (0, 1),
-        };
+        let (u_axis, v_axis) = face_axes(n);
         let [nu, nv] = spec.pixels;
         if nu == 0 || nv == 0 || nu > 8192 || nv > 8192 {
             return Err(invalid(format!("pixels {nu} × {nv}: each count must be 1 to 8192")));
@@ -841,10 +843,7 @@ impl DetectorScorer {
             return;
         }
         let mut rng = flight_stream(ph, history);
-        let mut mu_e = [0.0; MAX_MATERIALS];
-        for (k, v) in mu_e.iter_mut().enumerate().take(problem.materials.len()) {
-            *v = mu.mu_rho(k as u16);
-        }
+        let mu_e = *mu.tabled();
         // Optical depth t along the ray with density g(t) = β e^{−βt} / (1 − e^{−βT}) on [0, T],
         // β = 1 − Ω·n (0 heading straight for the face, 2 straight away from it); the
         // collision density there is e^{−t}, so the point stands for e^{−t} / g(t) collisions.
@@ -861,26 +860,9 @@ impl DetectorScorer {
         let Some((pos, m)) = ray.point_at_depth(&problem.geometry, &mu, ph.pos, ph.dir, t) else { return };
         let at = PhotonView { pos, weight: ph.weight * collisions, ..*ph };
         let Some(weight) = self.roulette(problem, &at, &mu_e, &mut rng) else { return };
-        // A photoelectric collision there (probability P^pe) emits fluorescence: drawn with
-        // the scorer's own stream.
-        let material = &problem.materials[m as usize];
-        let mut lines = fluorescence::Emitted::default();
-        if self.setup.options.fluorescence {
-            let nc = material.components.len().min(MAX_COMPONENTS);
-            let mut shares = [0.0; 3 * MAX_COMPONENTS];
-            material.channel_probabilities_at(material.lookup_ln(ph.kev.ln()), &mut shares[..3 * nc]);
-            let mut pick = rng.uniform();
-            for c in 0..nc {
-                pick -= shares[3 * c];
-                if pick < 0.0 {
-                    let element = material.components[c].element;
-                    let shell = photoelectric::sample_shell(ph.kev, element, &mut rng);
-                    lines = fluorescence::cascade(element, shell, &mut rng);
-                    break;
-                }
-            }
-        }
-        self.next_event(problem, &at, m as usize, weight, &mu_e, &lines, &mut rng, history);
+        // A photoelectric collision there emits fluorescence: drawn in `next_event` from its
+        // channel shares.
+        self.next_event(problem, &at, m as usize, weight, &mu_e, None, &mut rng, history);
     }
 
     /// Russian roulette of a forced-detection site (module docs): `None` when it is dropped,
@@ -916,7 +898,7 @@ impl DetectorScorer {
             let shell = photoelectric::sample_shell(ph.kev, site.element, &mut rng);
             lines = fluorescence::cascade(site.element, shell, &mut rng);
         }
-        self.next_event(problem, ph, site.material as usize, weight, &mu_e, &lines, &mut rng, history);
+        self.next_event(problem, ph, site.material as usize, weight, &mu_e, Some(&lines), &mut rng, history);
     }
 
     /// Uncollided transmission e^{−τ} at the photon's energy (`mu_e`: μ/ρ of every material
@@ -951,7 +933,7 @@ impl DetectorScorer {
     /// uniform in solid angle over the rest of the face (module docs).
     #[inline]
     #[allow(clippy::too_many_arguments)]
-    fn next_event(&mut self, problem: &Problem, ph: &PhotonView, m: usize, weight: f64, mu_e: &[f64; MAX_MATERIALS], lines: &fluorescence::Emitted, rng: &mut Stream, history: u64) {
+    fn next_event(&mut self, problem: &Problem, ph: &PhotonView, m: usize, weight: f64, mu_e: &[f64; MAX_MATERIALS], lines: Option<&fluorescence::Emitted>, rng: &mut Stream, history: u64) {
         let s = &*self.setup;
         let tally = &mut self.tally;
         // Distance to the plane, on the side the face looks at.
@@ -983,6 +965,27 @@ impl DetectorScorer {
                 a_coh[c] = shares[3 * c + 2] * coh.at_ln(ln_kev);
             }
         }
+        // Lines given (a photoelectric site), or, for a point standing for a collision of any
+        // kind, a photoelectric one (probability P^pe) drawn with the scorer's own stream.
+        let mut drawn = fluorescence::Emitted::default();
+        let lines = match lines {
+            Some(l) => l,
+            None => {
+                if s.options.fluorescence {
+                    let mut pick = rng.uniform();
+                    for c in 0..elems.len() {
+                        pick -= shares[3 * c];
+                        if pick < 0.0 {
+                            let element = material.components[c].element;
+                            let shell = photoelectric::sample_shell(kev, element, rng);
+                            drawn = fluorescence::cascade(element, shell, rng);
+                            break;
+                        }
+                    }
+                }
+                &drawn
+            }
+        };
         let su = ph.pos.axis(s.u_axis) - s.center_u;
         let sv = ph.pos.axis(s.v_axis) - s.center_v;
         let p_coh: f64 = if s.options.rayleigh && s.spec.fd_coherent_sampling { (0..elems.len()).map(|c| shares[3 * c + 2]).sum() } else { 0.0 };
@@ -1164,19 +1167,21 @@ impl NextEvent<'_> {
 /// flight (position, direction and energy bits), independent of the transport's stream.
 #[inline]
 fn flight_stream(p: &PhotonView, history: u64) -> Stream {
-    let mut h = 0xBB67_AE85_84CA_A73Bu64;
-    for w in [p.pos.x.to_bits(), p.pos.y.to_bits(), p.pos.z.to_bits(), p.dir.x.to_bits(), p.dir.y.to_bits(), p.kev.to_bits()] {
-        h = (h ^ w).wrapping_mul(0x9E37_79B9_7F4A_7C15).rotate_left(29);
-    }
-    history_stream(h, history)
+    stream_of(0xBB67_AE85_84CA_A73B, &[p.pos.x.to_bits(), p.pos.y.to_bits(), p.pos.z.to_bits(), p.dir.x.to_bits(), p.dir.y.to_bits(), p.kev.to_bits()], history)
 }
 
 /// The scorer's random stream at an interaction site: a pure function of the history and the
 /// site (position and energy bits), independent of the transport's stream.
 #[inline]
 fn site_stream(p: &PhotonView, history: u64) -> Stream {
-    let mut h = 0x6A09_E667_F3BC_C908u64;
-    for w in [p.pos.x.to_bits(), p.pos.y.to_bits(), p.pos.z.to_bits(), p.kev.to_bits()] {
+    stream_of(0x6A09_E667_F3BC_C908, &[p.pos.x.to_bits(), p.pos.y.to_bits(), p.pos.z.to_bits(), p.kev.to_bits()], history)
+}
+
+/// A history's stream keyed by a hash of `words` started from `seed`.
+#[inline]
+fn stream_of(seed: u64, words: &[u64], history: u64) -> Stream {
+    let mut h = seed;
+    for &w in words {
         h = (h ^ w).wrapping_mul(0x9E37_79B9_7F4A_7C15).rotate_left(29);
     }
     history_stream(h, history)
@@ -1471,11 +1476,7 @@ pub fn from_deck(
     resolve: impl Fn(&str, &str) -> Result<Material, String>,
 ) -> Result<DetectorScorer, String> {
     use crate::deck;
-    let axis = match det.normal_axis {
-        deck::Axis::X => 0,
-        deck::Axis::Y => 1,
-        deck::Axis::Z => 2,
-    };
+    let axis = det.normal_axis.index();
     let response = match &det.response {
         deck::Response::EnergyFluence => Response::EnergyFluence,
         deck::Response::PhotonFluence => Response::PhotonFluence,

@@ -32,7 +32,6 @@
 //!   (about 1.1·10¹² keV per bin, or 2.8·10¹⁴ keV² of squares) saturates, and the bin then
 //!   reads as NaN rather than as a wrong number.
 
-use std::borrow::Cow;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
 
@@ -419,26 +418,19 @@ impl Tally {
     pub fn raw_bin(&self, i: usize) -> (u128, u128) {
         match &self.store {
             Store::Dense { sums, .. } => (sums[i][0], sums[i][1]),
-            Store::Shared { sums, .. } => {
-                let up = |v: u64, shift: i32| if v == u64::MAX { u128::MAX } else { (v as u128) << shift };
-                let (a, b) = sums.words(i);
-                (up(a, FRACTION_BITS - SHARED_SUM_BITS), up(b, FRACTION_BITS - SHARED_SUM2_BITS))
-            }
+            Store::Shared { sums, .. } => shared_raw(sums, i),
         }
     }
 
     /// The raw fixed-point sums in the 2⁻⁵⁰ format (for checkpoints and shard files), copied
     /// (exactly converted from a shared store). A saturated shared word comes out as u128::MAX.
-    pub fn raw(&self) -> (Cow<'_, [u128]>, Cow<'_, [u128]>) {
-        let (a, b): (Vec<u128>, Vec<u128>) = (0..self.len()).map(|i| self.raw_bin(i)).unzip();
-        (Cow::Owned(a), Cow::Owned(b))
+    pub fn raw(&self) -> (Vec<u128>, Vec<u128>) {
+        (0..self.len()).map(|i| self.raw_bin(i)).unzip()
     }
 
     /// A flushed dense tally from raw fixed-point sums.
     pub fn from_raw(sum: Vec<u128>, sum2: Vec<u128>) -> Self {
-        let n = sum.len();
-        assert_eq!(n, sum2.len());
-        let _ = n;
+        assert_eq!(sum.len(), sum2.len());
         Self { store: Store::Dense { sums: sum.into_iter().zip(sum2).map(|(a, b)| [a, b]).collect(), pending: Pending::new() } }
     }
 
@@ -511,11 +503,7 @@ impl RawSource {
     #[inline]
     pub fn get(&self, i: usize) -> (u128, u128) {
         match &self.store {
-            RawStore::Shared(sums) => {
-                let up = |v: u64, shift: i32| if v == u64::MAX { u128::MAX } else { (v as u128) << shift };
-                let (a, b) = sums.words(i);
-                (up(a, FRACTION_BITS - SHARED_SUM_BITS), up(b, FRACTION_BITS - SHARED_SUM2_BITS))
-            }
+            RawStore::Shared(sums) => shared_raw(sums, i),
             RawStore::Dense(v) => (v[i][0], v[i][1]),
         }
     }
@@ -530,6 +518,15 @@ impl Tally {
             Store::Dense { sums, .. } => RawSource { store: RawStore::Dense(Arc::new(sums.clone())) },
         }
     }
+}
+
+/// Bin `i` of a shared store in the 2⁻⁵⁰ format of [`Tally::raw`] (exact; a saturated word
+/// comes out as u128::MAX).
+#[inline]
+fn shared_raw(sums: &SharedSums, i: usize) -> (u128, u128) {
+    let up = |v: u64, shift: i32| if v == u64::MAX { u128::MAX } else { (v as u128) << shift };
+    let (a, b) = sums.words(i);
+    (up(a, FRACTION_BITS - SHARED_SUM_BITS), up(b, FRACTION_BITS - SHARED_SUM2_BITS))
 }
 
 /// Mean and standard error of one bin from its sums over `histories` histories.
@@ -753,7 +750,7 @@ mod tests {
         let mut u = Tally::shared_template(2).zeroed_like();
         u.load_raw(&a, &b);
         assert_eq!(t.raw(), u.raw());
-        let d = Tally::from_raw(a.into_owned(), b.into_owned());
+        let d = Tally::from_raw(a, b);
         assert_eq!(d.mean_and_sigma(1000), t.mean_and_sigma(1000));
     }
 

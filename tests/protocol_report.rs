@@ -22,17 +22,17 @@ fn ci() -> bool {
 /// Worked example (one exam, invented demo figures):
 ///   W anode, 80 kV, 3.0 mm Al added; 25 mAs; focus–skin 90 cm; field 20 × 20 cm; water slab 15 cm.
 /// By hand:
-///   tube output at 1 m, Y = 39.34 µGy/mAs (the tube model's value for this tube; it lies in the
+///   tube output at 1 m, Y = 33.14 µGy/mAs (the tube model's value for this tube; it lies in the
 ///     common-practice 30–70 µGy/mAs range of REFERENCES.md; the test recomputes it through the
 ///     library API and requires the report to quote it to 0.1 %);
-///   IAK  = Y × mAs × (100/90)² = 39.34 × 25 × 1.234568 = 1214.2 µGy = 1.2142 mGy;
-///   ESAK = IAK × B; the beam's first HVL is 3.95 mm Al (tube model), between RQR 7 (3.48 mm Al)
+///   IAK  = Y × mAs × (100/90)² = 33.14 × 25 × 1.234568 = 1022.8 µGy = 1.0228 mGy;
+///   ESAK = IAK × B; the beam's first HVL is 3.73 mm Al (tube model), between RQR 7 (3.48 mm Al)
 ///     and RQR 9 (5.00 mm Al), whose published water backscatter factors for 20 × 20 cm are 1.41
-///     and 1.46 (IAEA TRS-457 table, from memory; see engine/src/validation), so B ≈ 1.43 and
-///     ESAK ≈ 1.2142 × 1.43 = 1.736 mGy;
+///     and 1.46 (IAEA TRS-457 table, from memory; see engine/src/validation), so B ≈ 1.42 and
+///     ESAK ≈ 1.0228 × 1.42 = 1.452 mGy;
 ///   ESD(water) = ESAK × (μen/ρ)water/air; the ratio over 40–80 keV lies between 1.017 and 1.079
 ///     (NIST SRD 126, REFERENCES.md: 0.06947/0.06833 at 40 keV, 0.02597/0.02407 at 80 keV),
-///     ≈ 1.04 here, so ESD ≈ 1.736 × 1.04 = 1.81 mGy.
+///     ≈ 1.04 here, so ESD ≈ 1.452 × 1.04 = 1.51 mGy.
 /// The analytic part (Y, IAK and the products) must be reproduced to 0.1 %; B and the ratio are
 /// Monte Carlo figures and are checked against the published ranges above.
 const EXAMPLE: &str = r#"# Worked example: invented demo figures.
@@ -50,7 +50,7 @@ mas = 25
 focus_skin_cm = 90
 field_cm = [20, 20]
 patient = { material = "water", thickness_cm = 15 }
-stated = { iak_mgy = 1.2142, esd_mgy = 1.81 }
+stated = { iak_mgy = 1.0228, esd_mgy = 1.51 }
 reference_level = { esd_mgy = 1.0 }
 "#;
 
@@ -80,7 +80,7 @@ fn worked_example_hdf5_and_html() {
     let dir = scratch("example");
     let (o, rows) = run_example(&dir);
     let stdout = String::from_utf8_lossy(&o.stdout);
-    // The reference level 1.0 mGy is exceeded (ESD ≈ 1.7 mGy): flagged, exit code 1.
+    // The reference level 1.0 mGy is exceeded (ESD ≈ 1.5 mGy): flagged, exit code 1.
     assert_eq!(o.status.code(), Some(1), "{stdout}\n{}", String::from_utf8_lossy(&o.stderr));
     assert!(stdout.contains("ABOVE REFERENCE LEVEL"), "{stdout}");
 
@@ -89,9 +89,9 @@ fn worked_example_hdf5_and_html() {
     let y = BeamQuality::of(&s).unwrap().air_kerma_ugy_per_mas_1m;
     let y_csv = num(&rows, "tube_output_1m", 3);
     assert!((y_csv / y - 1.0).abs() < 1e-3, "tube output {y_csv} vs {y}");
-    assert!((y / 39.34 - 1.0).abs() < 1e-3, "the hand example used 39.34 µGy/mAs; the model gives {y}");
+    assert!((y / 33.14 - 1.0).abs() < 1e-3, "the hand example used 33.14 µGy/mAs; the model gives {y}");
     let iak = num(&rows, "iak", 3);
-    assert!((iak / 1.2142 - 1.0).abs() < 1e-3, "IAK {iak} mGy vs 1.2142 by hand");
+    assert!((iak / 1.0228 - 1.0).abs() < 1e-3, "IAK {iak} mGy vs 1.0228 by hand");
     assert!((iak / (y_csv * 25.0 * (100.0f64 / 90.0).powi(2) * 1e-3) - 1.0).abs() < 1e-9);
     let b = num(&rows, "backscatter_factor", 3);
     let esak = num(&rows, "esak", 3);

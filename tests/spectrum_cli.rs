@@ -80,6 +80,7 @@ fn bad_input_exits_2_with_a_clear_message() {
         (&["--kvp", "80", "--anode-angle-deg", "80"], &["80", "3–45"]),
         (&["--kvp", "80", "--ripple-percent", "70"], &["70", "0–50"]),
         (&["--kvp", "80", "--bin-kev", "0"], &["0", "0.01–10"]),
+        (&["--kvp", "80", "--thin-target", "sommerfeld"], &["sommerfeld", "born-elwert, kramers"]),
     ];
     for (extra, wants) in cases {
         let mut a = vec!["spectrum"];
@@ -124,7 +125,7 @@ fn hdf5_output_reads_back_with_h5py() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     let script = format!(
-        "import h5py\nf=h5py.File({:?},'r')\ng=f['tube_spectrum']\nprint(g.attrs['kind'], g.attrs['anode'], g.attrs['kvp'], g.attrs['hvl1_mm_al'], len(g['fluence']), len(g['energy_edges']), float(g['fluence'][:].sum()), g['fluence'].attrs['units'], g['energy_edges'][-1])\n",
+        "import h5py\nf=h5py.File({:?},'r')\ng=f['tube_spectrum']\nprint(g.attrs['model'].replace(' ', '_'), g.attrs['kind'], g.attrs['anode'], g.attrs['kvp'], g.attrs['hvl1_mm_al'], len(g['fluence']), len(g['energy_edges']), float(g['fluence'][:].sum()), g['fluence'].attrs['units'], g['energy_edges'][-1])\n",
         p.to_str().unwrap()
     );
     let out = Command::new("python3").arg("-c").arg(&script).output();
@@ -137,7 +138,8 @@ fn hdf5_output_reads_back_with_h5py() {
         return;
     }
     let text = String::from_utf8(out.unwrap().stdout).unwrap();
-    let f: Vec<&str> = text.split_whitespace().collect();
+    let mut f: Vec<&str> = text.split_whitespace().collect();
+    assert_eq!(f.remove(0), "anode_model,_born-elwert_thin_target");
     assert_eq!(f[0], "spectrum");
     assert_eq!(f[1], "W");
     assert_eq!(f[2].parse::<f64>().unwrap(), 80.0);

@@ -44,9 +44,13 @@ pub struct Args {
     /// Voltage ripple (percent of peak), rectified-sine waveform; 0 = constant potential.
     #[arg(long, default_value_t = 0.0, allow_negative_numbers = true)]
     pub ripple_percent: f64,
-    /// Leave out attenuation inside the anode.
+    /// Leave out the anode model (attenuation inside the anode, electron backscatter): Kramers'
+    /// ideal thick target.
     #[arg(long)]
     pub no_self_absorption: bool,
+    /// Thin-target bremsstrahlung form of the anode model: born-elwert or kramers.
+    #[arg(long, default_value = "born-elwert")]
+    pub thin_target: String,
     /// Leave out inherent filtration, added filters and air.
     #[arg(long)]
     pub no_filtration: bool,
@@ -103,6 +107,7 @@ fn build(args: &Args) -> Result<(Tube, SpectrumOptions), SpectrumError> {
         distance_cm: args.distance_cm,
         air_path_cm: args.air_cm,
         self_absorption: !args.no_self_absorption,
+        thin_target: args.thin_target.parse().map_err(SpectrumError::Option)?,
         filtration: !args.no_filtration,
         characteristic_lines: !args.no_lines,
     };
@@ -180,7 +185,8 @@ pub fn run(args: Args) -> anyhow::Result<i32> {
     println!("  anode {} at {}°, {} kV, ripple {} %", tube.anode, tube.anode_angle_deg, tube.kvp, tube.ripple_percent);
     println!("  filtration: {}", filtration_text(&tube, &options));
     println!(
-        "  model parts: self-absorption {}, filtration {}, characteristic lines {}",
+        "  model parts: {}; self-absorption {}, filtration {}, characteristic lines {}",
+        spectrum.model,
         on_off(options.self_absorption),
         on_off(options.filtration),
         on_off(options.characteristic_lines)
@@ -202,8 +208,9 @@ pub fn run(args: Args) -> anyhow::Result<i32> {
         println!("  added {} for a first HVL of {t} mm Al: {:.4} mm", args.solve_material, mm);
     }
     println!();
-    println!("  model: Kramers cross section along a Thomson–Whiddington path, Archard electron diffusion");
-    println!("  and backscatter, self-absorption at the anode angle, Worthington–Tomlin K/L ionisation.");
+    println!("  model: thin-target bremsstrahlung (Born–Elwert shape by default, Kramers' flat form on request)");
+    println!("  along a Thomson–Whiddington path, Archard electron diffusion and backscatter, self-absorption");
+    println!("  at the anode angle, Worthington–Tomlin K/L ionisation.");
     println!("  limits: isotropic emission (no heel effect), Kramers constant 1.1e-9 /V (absolute output");
     println!("  about ±30–40 %), line intensities about ±50 %, narrow-beam attenuation throughout.");
     Ok(0)

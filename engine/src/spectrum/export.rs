@@ -30,6 +30,7 @@ pub fn to_result_file(tube: &Tube, spectrum: &Spectrum, quality: &BeamQuality) -
         tube.filters.iter().map(|x| format!("{}:{}", x.material, x.thickness_mm)).collect::<Vec<_>>().join(","),
     );
     g.set_attr("distance_cm", spectrum.distance_cm);
+    g.set_attr("model", spectrum.model.as_str());
     g.set_attr("normalisation", "photons per mm2 per mAs at distance_cm; Kramers constant 1.1e-9 per volt, about ±30-40 % absolute");
     g.set_attr("hvl1_mm_al", quality.hvl1_mm_al);
     g.set_attr("hvl2_mm_al", quality.hvl2_mm_al);

@@ -5,7 +5,7 @@
 //!
 //! We follow the approach of Birch & Marshall (R. Birch and M. Marshall, "Computation of
 //! bremsstrahlung X-ray spectra and comparison with spectra measured with a Ge(Li) detector",
-//! Phys. Med. Biol. 24 (1979) 505–517): Kramers' thin-target cross section integrated along the
+//! Phys. Med. Biol. 24 (1979) 505–517): a thin-target cross section integrated along the
 //! electron's path in the anode, electron slowing by the Thomson–Whiddington law, and
 //! attenuation of every photon on its way out of the anode. Our own choices within it:
 //!
@@ -13,13 +13,16 @@
 //!   Thomson–Whiddington range T0²/C equals the continuous-slowing-down range from the Bethe
 //!   collision stopping power (ICRU Report 37, mean excitation energies W 727 eV, Mo 424 eV,
 //!   Rh 449 eV, from memory).
-//! * **Bremsstrahlung.** Kramers' thin-target form: the energy radiated per keV of photon
-//!   energy per unit energy lost is the same for every photon energy below the electron's
-//!   energy. With Thomson–Whiddington slowing this gives, per incident electron into 4π,
-//!   N(E) dE = (2 k Z / E) ∫_E^{T0} P(E, s(T)) dT dE, s(T) = (T0² − T²)/C, where P is the
-//!   probability that the electron is still in the anode times the photon's transmission out
-//!   of it. For an ideal target (P = 1) this is exactly Kramers' thick-target law: energy
-//!   fluence ∝ Z (T0 − E), a straight line ending at the Duane–Hunt limit E_max = e·kVp.
+//! * **Bremsstrahlung.** The energy radiated per unit energy lost, per keV of photon energy,
+//!   is 2kZ·S(E/T) for photon energies E below the electron's energy T, with S the thin-target
+//!   shape of `thin_target.rs` (∫₀¹ S = 1: non-relativistic Born with Elwert's factor by
+//!   default, Kramers' flat S = 1 as an option). With Thomson–Whiddington slowing this gives,
+//!   per incident electron into 4π,
+//!   N(E) dE = (2 k Z / E) ∫_E^{T0} S(E/T) P(E, s(T)) dT dE, s(T) = (T0² − T²)/C, where P is
+//!   the probability that the electron is still in the anode times the photon's transmission
+//!   out of it. Kramers' ideal target (S = P = 1, the anode model switched off) gives exactly
+//!   Kramers' thick-target law: energy fluence ∝ Z (T0 − E), a straight line ending at the
+//!   Duane–Hunt limit E_max = e·kVp.
 //! * **Depth of emission and self-absorption** (`depth.rs`). Archard's diffusion model
 //!   (D. B. Archard, J. Appl. Phys. 32 (1961) 1505): straight in along the beam to the depth of
 //!   complete diffusion x_d = 40R/(7Z), then on in a random direction; electrons reaching the
@@ -78,6 +81,8 @@ pub mod export;
 pub mod model;
 pub mod plot;
 mod quadrature;
+mod thin_target;
+pub use thin_target::ThinTarget;
 pub mod quality;
 mod tube;
 
@@ -118,6 +123,9 @@ pub enum SpectrumError {
         /// What is wrong and how to write it.
         reason: String,
     },
+    /// A model option given in the wrong form (the text says what is accepted).
+    #[error("{0}")]
+    Option(String),
     /// Bin width outside the accepted range.
     #[error("bin width {0} keV is outside the valid range 0.01–10 keV")]
     BinWidthOutOfRange(f64),
@@ -173,6 +181,8 @@ pub struct Spectrum {
     pub kvp: f64,
     /// Anode element.
     pub anode: Anode,
+    /// What made it: "anode model, <thin-target form> thin target" or "Kramers ideal target".
+    pub model: String,
 }
 
 /// Energies and weights for building a sampling (alias) table. See the module overview for the

@@ -8,6 +8,7 @@ use super::data::{self, ShellInfo};
 use super::electron::{ionisation_cm2, StoppingMedium};
 use super::depth::EmissionDepth;
 use super::quadrature::GaussLegendre;
+use super::thin_target::ThinTarget;
 use super::tube::{Anode, Tube};
 use super::{Spectrum, SpectralLine, SpectrumError};
 
@@ -38,9 +39,13 @@ pub struct SpectrumOptions {
     /// Air between focal spot and the point of interest (cm); `None` = `distance_cm`.
     pub air_path_cm: Option<f64>,
     /// The anode model: attenuation of photons on their way out of the anode, electron
-    /// diffusion and backscatter, photo-excitation of lines by the continuum. `false` gives
-    /// Kramers' ideal thick target (every electron slows fully, nothing is absorbed).
+    /// diffusion and backscatter, photo-excitation of lines by the continuum, and the
+    /// thin-target form `thin_target`. `false` gives Kramers' ideal thick target (Kramers'
+    /// flat thin-target form, every electron slows fully, nothing is absorbed).
     pub self_absorption: bool,
+    /// Thin-target spectral shape used by the anode model (ignored when `self_absorption` is
+    /// off).
+    pub thin_target: ThinTarget,
     /// Inherent filtration, added filters and the air path.
     pub filtration: bool,
     /// Characteristic (K and L) lines.
@@ -54,6 +59,7 @@ impl Default for SpectrumOptions {
             distance_cm: 100.0,
             air_path_cm: None,
             self_absorption: true,
+            thin_target: ThinTarget::default(),
             filtration: true,
             characteristic_lines: true,
         }
@@ -156,6 +162,7 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
     let theta = tube.anode_angle_deg.to_radians();
     // Anode attenuation used for self-absorption (0 when switched off).
     let absorbing = options.self_absorption;
+    let shape = options.thin_target;
 
     // Attenuating layers in beam order.
     let mut layers: Vec<Layer> = Vec::new();
@@ -219,7 +226,9 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
         let c_tw = medium.thomson_whiddington_kev2_cm2_g(t0);
         let depth = EmissionDepth::new(medium.z, t0, c_tw, theta);
         // Continuum: photons per keV per incident electron into 4π at energy e,
-        // N(e) = (2 k Z / e) ∫_e^{T0} exp(−μ(e) s(T) cot θ) dT, s(T) = (T0² − T²)/C.
+        // N(e) = (2 k Z / e) ∫_e^{T0} S(e/T) P(e, s(T)) dT, s(T) = (T0² − T²)/C, S the
+        // thin-target shape and P the escape probability (`depth.rs`); S = P = 1 for Kramers'
+        // ideal target.
         for b in 0..nbins {
             let lo = edges[b];
             let hi = edges[b + 1].min(t0);
@@ -235,7 +244,7 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
                 let part = gl_e.integrate(w[0], w[1], |e| {
                     let inner = || -> Result<f64, SpectrumError> {
                         let mu = anode_mu_rho(e);
-                        let j = if !absorbing { t0 - e } else { depth.integral(&gl_t, e, mu, |_| 1.0) };
+                        let j = if !absorbing { t0 - e } else { depth.integral(&gl_t, e, mu, |t| shape.shape(e / t)) };
                         Ok(2.0 * KRAMERS_K_PER_KEV * medium.z / e * j * transmission(e)?)
                     };
                     inner().unwrap_or_else(|x| {
@@ -274,7 +283,7 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
                         let (a, b) = (w[0] + p as f64 * step, w[0] + (p + 1) as f64 * step);
                         for (x, wt) in gl_e.nodes.iter().zip(&gl_e.weights) {
                             let e = 0.5 * (a + b) + 0.5 * (b - a) * x;
-                            let n_e = 2.0 * KRAMERS_K_PER_KEV * medium.z / e * depth.integral(&gl_t, e, 0.0, |_| 1.0);
+                            let n_e = 2.0 * KRAMERS_K_PER_KEV * medium.z / e * depth.integral(&gl_t, e, 0.0, |t| shape.shape(e / t));
                             let total = element.total_cm2_g(e);
                             let photo_share = element.photo_cm2_g(e) / total;
                             let shares = element.photo_shell_shares(e).map(|x| x * photo_share * n_e * wt * 0.5 * (b - a));
@@ -340,6 +349,7 @@ pub fn compute_spectrum(tube: &Tube, options: &SpectrumOptions) -> Result<Spectr
         distance_cm: options.distance_cm,
         kvp: tube.kvp,
         anode: tube.anode,
+        model: if absorbing { format!("anode model, {} thin target", shape.name()) } else { "Kramers ideal target".to_string() },
     })
 }
 

@@ -220,6 +220,20 @@ fn tube_filters_and_detector_are_resolved() {
         det.anti_scatter_grid.as_ref().unwrap().strip_material.name,
         "Pb"
     );
+    assert_eq!((det.primary_subpixels, det.primary_focal_points), (2, 4), "defaults");
+    let deck::SourceShape::Point { focal_spot_cm, .. } = d.resolved.source.shape else {
+        panic!("a point source")
+    };
+    assert_eq!(focal_spot_cm, [0.0, 0.0], "a point focus by default");
+    let d = good("focal_spot_detector.toml");
+    let ScoreKind::Detector(det) = &d.resolved.scores[0].kind else {
+        panic!()
+    };
+    assert_eq!((det.primary_subpixels, det.primary_focal_points), (3, 2));
+    let deck::SourceShape::Point { focal_spot_cm, .. } = d.resolved.source.shape else {
+        panic!("a point source")
+    };
+    assert_eq!(focal_spot_cm, [0.12, 0.12]);
 }
 
 #[test]

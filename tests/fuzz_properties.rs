@@ -61,7 +61,7 @@ proptest! {
         }
         let kev: Vec<f64> = (0..w.len()).map(|i| 20.0 + i as f64 * 5.0).collect();
         let src = Source::new(
-            Emission::Point { origin_cm: Vec3::new(0.0, 0.0, -dist), direction: Vec3::new(0.0, 0.0, 1.0), field: Field::Circle { radius_cm: r }, field_distance_cm: dist },
+            Emission::Point { origin_cm: Vec3::new(0.0, 0.0, -dist), direction: Vec3::new(0.0, 0.0, 1.0), field: Field::Circle { radius_cm: r }, field_distance_cm: dist, focal_spot_cm: [0.0, 0.0] },
             EnergySpectrum::Discrete { kev: kev.clone(), table },
         );
         let mut rng = history_stream(seed, 2);

@@ -202,11 +202,12 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
         SourceShape::Parallel { position_cm, direction, field: f } => {
             Emission::Parallel { origin_cm: vec3(*position_cm), direction: unit(*direction, "source.direction")?, field: field(f) }
         }
-        SourceShape::Point { position_cm, direction, field: f, field_distance_cm } => Emission::Point {
+        SourceShape::Point { position_cm, direction, field: f, field_distance_cm, focal_spot_cm } => Emission::Point {
             origin_cm: vec3(*position_cm),
             direction: unit(*direction, "source.direction")?,
             field: field(f),
             field_distance_cm: *field_distance_cm,
+            focal_spot_cm: *focal_spot_cm,
         },
     };
     let source = Source::new(emission, energy);
@@ -282,6 +283,7 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
             let one = Vec3::new(1.0, 1.0, 1.0);
             let bounds = dosemill_geometry::Aabb::new(lo - one, hi + one);
             let grid = grid.with_world(dosemill_geometry::World { medium: world, bounds }).map_err(|e| err("geometry", e.to_string()))?;
+            grid.prepare_tracking();
             let mut max_density = grid.max_density_by_material();
             max_density.resize(mats.tables.len(), 0.0);
             let majorant = crate::physics::majorant::Majorant::new(&mats.tables, &max_density);

@@ -482,6 +482,12 @@ impl VoxelGrid {
         }
     }
 
+    /// Builds the brick tables that delta tracking walks (otherwise built by the first walk),
+    /// so that a run's set-up, not its first history, pays for them.
+    pub fn prepare_tracking(&self) {
+        let _ = self.brick_map();
+    }
+
     /// The brick table, built on first use.
     #[inline(always)]
     pub(crate) fn brick_map(&self) -> &BrickMap {

@@ -123,12 +123,16 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
             direction,
             field,
             field_distance_cm,
+            focal_spot_cm,
         } => {
             src["kind"] = value("point");
             src["position_cm"] = value(arr_f(position_cm));
             src["direction"] = value(arr_f(direction));
             src["field"] = value(field_inline(field));
             src["field_distance_cm"] = value(*field_distance_cm);
+            if focal_spot_cm.iter().any(|&x| x != 0.0) {
+                src["focal_spot_cm"] = value(arr_f(focal_spot_cm));
+            }
         }
     }
     match &r.source.energy {
@@ -359,6 +363,12 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                 t["forced_detection_from"] = value(d.forced_detection_from.name());
                 t["forced_detection_roulette_below"] = value(d.forced_detection_roulette_below);
                 t["forced_detection_coherent_directions"] = value(d.forced_detection_coherent_directions);
+                if d.primary_subpixels != crate::deck::DEFAULT_PRIMARY_SUBPIXELS {
+                    t["primary_subpixels"] = value(d.primary_subpixels as i64);
+                }
+                if d.primary_focal_points != crate::deck::DEFAULT_PRIMARY_FOCAL_POINTS {
+                    t["primary_focal_points"] = value(d.primary_focal_points as i64);
+                }
             }
         }
         aot.push(t);

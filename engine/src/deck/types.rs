@@ -98,6 +98,9 @@ pub enum SourceShape {
         field: Field,
         /// Distance from the point to the plane where `field` is defined (cm).
         field_distance_cm: f64,
+        /// Width and height of a uniform focal spot centred on `position_cm`, along the
+        /// beam frame's u and v axes (cm); `[0, 0]` (the default): a point focus.
+        focal_spot_cm: [f64; 2],
     },
 }
 
@@ -501,11 +504,21 @@ pub struct Detector {
     /// Also draw a coherent-scatter direction from its own angular distribution at each site
     /// (combined with the solid-angle points by the balance heuristic).
     pub forced_detection_coherent_directions: bool,
+    /// Points per pixel axis of the noiseless primary image (1–32; pixels the field edge
+    /// crosses are refined further).
+    pub primary_subpixels: usize,
+    /// Points per focal-spot axis of the noiseless primary image when the source has a focal
+    /// spot (1–16).
+    pub primary_focal_points: usize,
 }
 
 /// Default transmission level below which forced-detection sites are played by Russian
 /// roulette (chosen on the P2 reference problem, README).
 pub const DEFAULT_FD_ROULETTE_BELOW: f64 = 0.5;
+/// Default points per pixel axis of the noiseless primary image.
+pub const DEFAULT_PRIMARY_SUBPIXELS: usize = 2;
+/// Default points per focal-spot axis of the noiseless primary image.
+pub const DEFAULT_PRIMARY_FOCAL_POINTS: usize = 4;
 
 /// Where forced detection looks from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -413,6 +413,7 @@ impl<'f> Walk<'f> {
                 "direction",
                 "field",
                 "field_distance_cm",
+                "focal_spot_cm",
                 "energy_kev",
                 "spectrum_file",
                 "tube",
@@ -444,6 +445,7 @@ impl<'f> Walk<'f> {
         }
         let mut field = None;
         let mut field_distance_cm = None;
+        let mut focal_spot_cm = Some([0.0, 0.0]);
         match kind {
             Some("pencil") => {
                 if let Some(f) = t.get("field") {
@@ -462,6 +464,14 @@ impl<'f> Walk<'f> {
                         None,
                     );
                 }
+                if let Some(f) = t.get("focal_spot_cm") {
+                    cx.err(
+                        f.key_or_value(),
+                        "source.focal_spot_cm",
+                        "only a point source has a focal spot",
+                        Some("remove it, or use `kind = \"point\"` with a `field` and `field_distance_cm`".into()),
+                    );
+                }
             }
             Some(k) => {
                 field = t
@@ -469,7 +479,19 @@ impl<'f> Walk<'f> {
                     .and_then(|f| field_of(cx, f, "source.field"));
                 if k == "point" {
                     field_distance_cm = t.num_req(cx, "field_distance_cm", Range::pos(1e5, "cm"), "a point source needs `field_distance_cm`: the distance from the point at which `field` is measured");
-                } else if let Some(f) = t.get("field_distance_cm") {
+                    if let Some(f) = t.get("focal_spot_cm") {
+                        focal_spot_cm = vec_n::<2>(cx, f, "source.focal_spot_cm", Range::closed(0.0, 1.0, "cm"));
+                    }
+                } else if let Some(f) = t.get("focal_spot_cm") {
+                    cx.err(
+                        f.key_or_value(),
+                        "source.focal_spot_cm",
+                        "only a point source has a focal spot",
+                        Some("remove it, or use `kind = \"point\"` with `field_distance_cm`".into()),
+                    );
+                }
+                if k != "point" && t.get("field_distance_cm").is_some() {
+                    let f = t.get("field_distance_cm")?;
                     cx.err(
                         f.key_or_value(),
                         "source.field_distance_cm",
@@ -528,6 +550,7 @@ impl<'f> Walk<'f> {
                 direction: direction?,
                 field: field?,
                 field_distance_cm: field_distance_cm?,
+                focal_spot_cm: focal_spot_cm?,
             },
         };
         if direction?.iter().all(|c| *c == 0.0) {
@@ -1473,6 +1496,8 @@ impl<'f> Walk<'f> {
                 "forced_detection_from",
                 "forced_detection_roulette_below",
                 "forced_detection_coherent_directions",
+                "primary_subpixels",
+                "primary_focal_points",
             ],
             _ => &[],
         };
@@ -1695,6 +1720,14 @@ impl<'f> Walk<'f> {
             None => Some(DEFAULT_FD_ROULETTE_BELOW),
         };
         let coherent_directions = t.bool_or(cx, "forced_detection_coherent_directions", true);
+        let primary_subpixels = match t.get("primary_subpixels") {
+            Some(n) => uint_in(cx, n, &t.kp("primary_subpixels"), 1, 32),
+            None => Some(DEFAULT_PRIMARY_SUBPIXELS as u64),
+        };
+        let primary_focal_points = match t.get("primary_focal_points") {
+            Some(n) => uint_in(cx, n, &t.kp("primary_focal_points"), 1, 16),
+            None => Some(DEFAULT_PRIMARY_FOCAL_POINTS as u64),
+        };
         let mut pixels = None;
         if let (Some(s), Some(p)) = (size, pitch) {
             let n0 = (s[0] / p[0]).round();
@@ -1816,6 +1849,8 @@ impl<'f> Walk<'f> {
             forced_detection_from: fd_from,
             forced_detection_roulette_below: roulette_below?,
             forced_detection_coherent_directions: coherent_directions,
+            primary_subpixels: primary_subpixels? as usize,
+            primary_focal_points: primary_focal_points? as usize,
         })
     }
 

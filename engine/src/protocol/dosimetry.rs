@@ -203,7 +203,7 @@ pub fn emission_of(beam: &BeamShape, fsd_cm: f64) -> Emission {
     let z = Vec3::new(0.0, 0.0, 1.0);
     match beam {
         BeamShape::Pencil => Emission::Pencil { origin_cm: Vec3::new(0.0, 0.0, 0.0), direction: z },
-        BeamShape::Field(f) => Emission::Point { origin_cm: Vec3::new(0.0, 0.0, 0.0), direction: z, field: *f, field_distance_cm: fsd_cm },
+        BeamShape::Field(f) => Emission::Point { origin_cm: Vec3::new(0.0, 0.0, 0.0), direction: z, field: *f, field_distance_cm: fsd_cm, focal_spot_cm: [0.0, 0.0] },
     }
 }
 

@@ -178,7 +178,7 @@ pub fn evaluate_voxel(path: &str, thickness_cm: f64, beam: &VoxelBeam) -> Result
         Field::Rectangle { width_cm, height_cm } => deck::Field::Rectangle { width_cm, height_cm },
         Field::Circle { radius_cm } => deck::Field::Circle { radius_cm },
     };
-    d.source.shape = deck::SourceShape::Point { position_cm: focus, direction: [0.0, 0.0, 1.0], field: f, field_distance_cm: beam.fsd_cm };
+    d.source.shape = deck::SourceShape::Point { position_cm: focus, direction: [0.0, 0.0, 1.0], field: f, field_distance_cm: beam.fsd_cm, focal_spot_cm: [0.0, 0.0] };
     let mut problem = build(&d)?;
     let physics: PhysicsOptions = problem.options;
     if beam.spectrum.min_kev() < physics.cutoff_kev {
@@ -188,7 +188,7 @@ pub fn evaluate_voxel(path: &str, thickness_cm: f64, beam: &VoxelBeam) -> Result
             physics.cutoff_kev
         )));
     }
-    let emission = crate::source::Emission::Point { origin_cm: Vec3::new(focus[0], focus[1], focus[2]), direction: Vec3::new(0.0, 0.0, 1.0), field: beam.field, field_distance_cm: beam.fsd_cm };
+    let emission = crate::source::Emission::Point { origin_cm: Vec3::new(focus[0], focus[1], focus[2]), direction: Vec3::new(0.0, 0.0, 1.0), field: beam.field, field_distance_cm: beam.fsd_cm, focal_spot_cm: [0.0, 0.0] };
     problem.source = Source::new(emission, beam.spectrum.clone());
     let Some(Scorer::VoxelDose(vd)) = problem.scorers.first() else { unreachable!("one voxel_dose score") };
     let vd: VoxelDose = (**vd).clone();

@@ -179,6 +179,8 @@ const MAX_MATERIALS: usize = MuAt::TABLED;
 const PRIMARY_SUB_BIN_KEV: f64 = 0.5;
 /// Sub-pixel points per axis of the deterministic primary in pixels the field edge crosses.
 const EDGE_SUBPIXELS: usize = 24;
+/// The same with a focal spot (each sub-pixel point is also spread over the spot's points).
+const EDGE_SUBPIXELS_WITH_SPOT: usize = 8;
 
 /// Errors setting up a detector.
 #[derive(Debug, thiserror::Error, PartialEq)]
@@ -329,6 +331,9 @@ pub struct DetectorSpec {
     pub fd_along_flights: bool,
     /// Sub-pixel points per axis of the deterministic primary (≥ 1).
     pub primary_subpixels: usize,
+    /// Focal-spot points per axis of the deterministic primary when the source has a focal
+    /// spot (≥ 1; an axis of zero extent takes one).
+    pub primary_focal_points: usize,
 }
 
 impl DetectorSpec {
@@ -354,7 +359,8 @@ impl DetectorSpec {
             fd_coherent_sampling: true,
             fd_roulette_below: Self::DEFAULT_FD_ROULETTE_BELOW,
             fd_along_flights: true,
-            primary_subpixels: 2,
+            primary_subpixels: crate::deck::DEFAULT_PRIMARY_SUBPIXELS,
+            primary_focal_points: crate::deck::DEFAULT_PRIMARY_FOCAL_POINTS,
         }
     }
 }
@@ -1205,12 +1211,46 @@ impl DetectorSetup {
             None => Vec::new(),
         };
         let origin = source_origin(source);
+        let (fu, fv) = match source.emission {
+            Emission::Pencil { .. } => return,
+            Emission::Parallel { direction, .. } | Emission::Point { direction, .. } => crate::source::frame(direction),
+        };
+        // Focal-spot points (offsets along u, v, and the point) for a point source with a spot:
+        // a midpoint grid of nf × nf over the spot (one point along an axis of zero extent);
+        // the photon density is then the spot average of |cos θ|/r² over the mean solid angle
+        // of the aperture from the spot points (see the source's sampling).
+        let spot = match source.emission {
+            Emission::Point { focal_spot_cm, .. } if focal_spot_cm.iter().any(|&x| x > 0.0) => Some(focal_spot_cm),
+            _ => None,
+        };
+        let mut foci: Vec<(f64, f64, Vec3)> = vec![(0.0, 0.0, origin)];
+        if let Some([w, h]) = spot {
+            let nf = self.spec.primary_focal_points.max(1);
+            let (n_u, n_v) = (if w > 0.0 { nf } else { 1 }, if h > 0.0 { nf } else { 1 });
+            foci.clear();
+            for j in 0..n_v {
+                for i in 0..n_u {
+                    let a = w * ((i as f64 + 0.5) / n_u as f64 - 0.5);
+                    let b = h * ((j as f64 + 0.5) / n_v as f64 - 0.5);
+                    foci.push((a, b, origin + fu * a + fv * b));
+                }
+            }
+        }
         let (emission_dir, field, density) = match source.emission {
             Emission::Pencil { .. } => return,
             Emission::Parallel { direction, field, .. } => (direction, field, 1.0 / field.area_cm2()),
-            Emission::Point { direction, field, field_distance_cm, .. } => (direction, field, 1.0 / field_solid_angle(&field, field_distance_cm)),
+            Emission::Point { direction, field, field_distance_cm, .. } => match spot {
+                None => (direction, field, 1.0 / field_solid_angle(&field, field_distance_cm)),
+                Some(_) => {
+                    let mean = foci.iter().map(|&(a, b, _)| field.solid_angle_from(field_distance_cm, a, b)).sum::<f64>() / foci.len() as f64;
+                    (direction, field, 1.0 / mean)
+                }
+            },
         };
-        let (fu, fv) = crate::source::frame(emission_dir);
+        let nfoci = foci.len();
+        // Pixels the field edge crosses are refined to this many points per axis (fewer with a
+        // focal spot, whose points already spread each pixel's rays).
+        let edge_subpixels = if nfoci > 1 { EDGE_SUBPIXELS_WITH_SPOT } else { EDGE_SUBPIXELS };
         let [nu, nv] = self.spec.pixels;
         let ns = self.spec.primary_subpixels.max(1);
         let mut image = vec![0.0; nu * nv];
@@ -1227,13 +1267,14 @@ impl DetectorSetup {
                 let mut inside = 0usize;
                 for sv in 0..ns {
                     for su in 0..ns {
+                        for &(fa, fb, focus) in &foci {
                         let du = -0.5 * self.spec.size_cm[0] + (iu as f64 + (su as f64 + 0.5) / ns as f64) * self.pitch[0];
                         let dv = -0.5 * self.spec.size_cm[1] + (iv as f64 + (sv as f64 + 0.5) / ns as f64) * self.pitch[1];
                         let x = Vec3::new(0.0, 0.0, 0.0).with_axis(self.n_axis, self.plane_cm).with_axis(self.u_axis, self.center_u + du).with_axis(self.v_axis, self.center_v + dv);
                         // Ray and uncollided photon density per unit face area.
                         let (from, dir, length, phi) = match source.emission {
                             Emission::Point { field_distance_cm, .. } => {
-                                let d = x - origin;
+                                let d = x - focus;
                                 let r2 = d.norm_squared();
                                 let r = r2.sqrt();
                                 let dir = d * (1.0 / r);
@@ -1242,10 +1283,10 @@ impl DetectorSetup {
                                     continue;
                                 }
                                 let t = field_distance_cm / c;
-                                if !field_contains(&field, dir.dot(fu) * t, dir.dot(fv) * t) {
+                                if !field_contains(&field, fa + dir.dot(fu) * t, fb + dir.dot(fv) * t) {
                                     continue;
                                 }
-                                (origin, dir, r, density * dir.axis(self.n_axis).abs() / r2)
+                                (focus, dir, r, density * dir.axis(self.n_axis).abs() / r2)
                             }
                             Emission::Parallel { .. } => {
                                 // Back along the beam to the emission plane.
@@ -1291,13 +1332,14 @@ impl DetectorSetup {
                                 }
                             };
                         }
+                        }
                     }
                 }
-                if inside > 0 && inside < ns * ns && ns < EDGE_SUBPIXELS {
-                    ns = EDGE_SUBPIXELS;
+                if inside > 0 && inside < ns * ns * nfoci && ns < edge_subpixels {
+                    ns = edge_subpixels;
                     continue;
                 }
-                let norm = 1.0 / (ns * ns) as f64;
+                let norm = 1.0 / (ns * ns * nfoci) as f64;
                 break (acc * norm, acc_ng * norm);
                 };
                 image[iv * nu + iu] = acc;
@@ -1495,6 +1537,8 @@ pub fn from_deck(
     spec.fd_coherent_sampling = det.forced_detection_coherent_directions;
     spec.fd_roulette_below = det.forced_detection_roulette_below;
     spec.fd_along_flights = det.forced_detection_from == deck::ForcedDetectionFrom::Flights;
+    spec.primary_subpixels = det.primary_subpixels;
+    spec.primary_focal_points = det.primary_focal_points;
     if let Some(g) = &det.anti_scatter_grid {
         let table = |name: &str, key: &str| -> Result<MaterialXs, String> {
             let m = resolve(name, key)?;

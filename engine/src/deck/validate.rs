@@ -464,14 +464,6 @@ impl<'f> Walk<'f> {
                         None,
                     );
                 }
-                if let Some(f) = t.get("focal_spot_cm") {
-                    cx.err(
-                        f.key_or_value(),
-                        "source.focal_spot_cm",
-                        "only a point source has a focal spot",
-                        Some("remove it, or use `kind = \"point\"` with a `field` and `field_distance_cm`".into()),
-                    );
-                }
             }
             Some(k) => {
                 field = t
@@ -482,16 +474,7 @@ impl<'f> Walk<'f> {
                     if let Some(f) = t.get("focal_spot_cm") {
                         focal_spot_cm = vec_n::<2>(cx, f, "source.focal_spot_cm", Range::closed(0.0, 1.0, "cm"));
                     }
-                } else if let Some(f) = t.get("focal_spot_cm") {
-                    cx.err(
-                        f.key_or_value(),
-                        "source.focal_spot_cm",
-                        "only a point source has a focal spot",
-                        Some("remove it, or use `kind = \"point\"` with `field_distance_cm`".into()),
-                    );
-                }
-                if k != "point" && t.get("field_distance_cm").is_some() {
-                    let f = t.get("field_distance_cm")?;
+                } else if let Some(f) = t.get("field_distance_cm") {
                     cx.err(
                         f.key_or_value(),
                         "source.field_distance_cm",
@@ -501,6 +484,16 @@ impl<'f> Walk<'f> {
                 }
             }
             None => {}
+        }
+        if let (Some(k), Some(f)) = (kind, t.get("focal_spot_cm")) {
+            if k != "point" {
+                cx.err(
+                    f.key_or_value(),
+                    "source.focal_spot_cm",
+                    "only a point source has a focal spot",
+                    Some("remove it, or use `kind = \"point\"` with a `field` and `field_distance_cm`".into()),
+                );
+            }
         }
         // Energy: exactly one of three.
         let given: Vec<&str> = ["energy_kev", "spectrum_file", "tube"]

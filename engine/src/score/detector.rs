@@ -1211,10 +1211,11 @@ impl DetectorSetup {
             None => Vec::new(),
         };
         let origin = source_origin(source);
-        let (fu, fv) = match source.emission {
+        let (emission_dir, field) = match source.emission {
             Emission::Pencil { .. } => return,
-            Emission::Parallel { direction, .. } | Emission::Point { direction, .. } => crate::source::frame(direction),
+            Emission::Parallel { direction, field, .. } | Emission::Point { direction, field, .. } => (direction, field),
         };
+        let (fu, fv) = crate::source::frame(emission_dir);
         // Focal-spot points (offsets along u, v, and the point) for a point source with a spot:
         // a midpoint grid of nf × nf over the spot (one point along an axis of zero extent);
         // the photon density is then the spot average of |cos θ|/r² over the mean solid angle
@@ -1236,16 +1237,12 @@ impl DetectorSetup {
                 }
             }
         }
-        let (emission_dir, field, density) = match source.emission {
-            Emission::Pencil { .. } => return,
-            Emission::Parallel { direction, field, .. } => (direction, field, 1.0 / field.area_cm2()),
-            Emission::Point { direction, field, field_distance_cm, .. } => match spot {
-                None => (direction, field, 1.0 / field_solid_angle(&field, field_distance_cm)),
-                Some(_) => {
-                    let mean = foci.iter().map(|&(a, b, _)| field.solid_angle_from(field_distance_cm, a, b)).sum::<f64>() / foci.len() as f64;
-                    (direction, field, 1.0 / mean)
-                }
-            },
+        let density = match source.emission {
+            Emission::Point { field_distance_cm, .. } if spot.is_some() => {
+                1.0 / (foci.iter().map(|&(a, b, _)| field.solid_angle_from(field_distance_cm, a, b)).sum::<f64>() / foci.len() as f64)
+            }
+            Emission::Point { field_distance_cm, .. } => 1.0 / field_solid_angle(&field, field_distance_cm),
+            _ => 1.0 / field.area_cm2(),
         };
         let nfoci = foci.len();
         // Pixels the field edge crosses are refined to this many points per axis (fewer with a
@@ -1267,71 +1264,71 @@ impl DetectorSetup {
                 let mut inside = 0usize;
                 for sv in 0..ns {
                     for su in 0..ns {
-                        for &(fa, fb, focus) in &foci {
                         let du = -0.5 * self.spec.size_cm[0] + (iu as f64 + (su as f64 + 0.5) / ns as f64) * self.pitch[0];
                         let dv = -0.5 * self.spec.size_cm[1] + (iv as f64 + (sv as f64 + 0.5) / ns as f64) * self.pitch[1];
                         let x = Vec3::new(0.0, 0.0, 0.0).with_axis(self.n_axis, self.plane_cm).with_axis(self.u_axis, self.center_u + du).with_axis(self.v_axis, self.center_v + dv);
-                        // Ray and uncollided photon density per unit face area.
-                        let (from, dir, length, phi) = match source.emission {
-                            Emission::Point { field_distance_cm, .. } => {
-                                let d = x - focus;
-                                let r2 = d.norm_squared();
-                                let r = r2.sqrt();
-                                let dir = d * (1.0 / r);
-                                let c = dir.dot(emission_dir);
-                                if c <= 0.0 {
-                                    continue;
+                        for &(fa, fb, focus) in &foci {
+                            // Ray and uncollided photon density per unit face area.
+                            let (from, dir, length, phi) = match source.emission {
+                                Emission::Point { field_distance_cm, .. } => {
+                                    let d = x - focus;
+                                    let r2 = d.norm_squared();
+                                    let r = r2.sqrt();
+                                    let dir = d * (1.0 / r);
+                                    let c = dir.dot(emission_dir);
+                                    if c <= 0.0 {
+                                        continue;
+                                    }
+                                    let t = field_distance_cm / c;
+                                    if !field_contains(&field, fa + dir.dot(fu) * t, fb + dir.dot(fv) * t) {
+                                        continue;
+                                    }
+                                    (focus, dir, r, density * dir.axis(self.n_axis).abs() / r2)
                                 }
-                                let t = field_distance_cm / c;
-                                if !field_contains(&field, fa + dir.dot(fu) * t, fb + dir.dot(fv) * t) {
-                                    continue;
+                                Emission::Parallel { .. } => {
+                                    // Back along the beam to the emission plane.
+                                    let dn = emission_dir.axis(self.n_axis);
+                                    if dn * self.facing <= 0.0 {
+                                        continue;
+                                    }
+                                    let back = (x - origin).dot(emission_dir);
+                                    let start = x - emission_dir * back;
+                                    let rel = start - origin;
+                                    if back <= 0.0 || !field_contains(&field, rel.dot(fu), rel.dot(fv)) {
+                                        continue;
+                                    }
+                                    (start, emission_dir, back, density * dn.abs())
                                 }
-                                (focus, dir, r, density * dir.axis(self.n_axis).abs() / r2)
-                            }
-                            Emission::Parallel { .. } => {
-                                // Back along the beam to the emission plane.
-                                let dn = emission_dir.axis(self.n_axis);
-                                if dn * self.facing <= 0.0 {
-                                    continue;
-                                }
-                                let back = (x - origin).dot(emission_dir);
-                                let start = x - emission_dir * back;
-                                let rel = start - origin;
-                                if back <= 0.0 || !field_contains(&field, rel.dot(fu), rel.dot(fv)) {
-                                    continue;
-                                }
-                                (start, emission_dir, back, density * dn.abs())
-                            }
-                            Emission::Pencil { .. } => unreachable!(),
-                        };
-                        inside += 1;
-                        let cos_det = dir.axis(self.n_axis).abs();
-                        let fast = mass_thickness(geometry, nmat, from, dir, length, &mut mt);
-                        for (k, &(e, p)) in energies.iter().enumerate() {
-                            let tau = if fast {
-                                (0..nmat).map(|m| mu[k][m] * mt[m]).sum::<f64>()
-                            } else {
-                                crate::raytrace::optical_depth(geometry, materials, from, dir, length, e)
+                                Emission::Pencil { .. } => unreachable!(),
                             };
-                            let v = p * phi * (-tau).exp() * self.spec.response.value(e, cos_det);
-                            acc_ng += v;
-                            acc += match &self.spec.grid {
-                                None => v,
-                                Some(g) => {
-                                    let (a_x, a_l) = match g.focus_distance_cm {
-                                        None => (dir.axis(self.u_axis), dir.axis(self.n_axis) * self.facing),
-                                        Some(f) => {
-                                            let h = (du * du + f * f).sqrt();
-                                            let (sa, ca) = (du / h, f / h);
-                                            let (au, an) = (dir.axis(self.u_axis), dir.axis(self.n_axis) * self.facing);
-                                            (au * ca - an * sa, au * sa + an * ca)
-                                        }
-                                    };
-                                    let (ms, mi) = grid_mu[k];
-                                    v * super::grid::transmission_local(ms, mi, g.height_cm, g.period_cm, g.strip_width_cm, a_x, a_l)
-                                }
-                            };
-                        }
+                            inside += 1;
+                            let cos_det = dir.axis(self.n_axis).abs();
+                            let fast = mass_thickness(geometry, nmat, from, dir, length, &mut mt);
+                            for (k, &(e, p)) in energies.iter().enumerate() {
+                                let tau = if fast {
+                                    (0..nmat).map(|m| mu[k][m] * mt[m]).sum::<f64>()
+                                } else {
+                                    crate::raytrace::optical_depth(geometry, materials, from, dir, length, e)
+                                };
+                                let v = p * phi * (-tau).exp() * self.spec.response.value(e, cos_det);
+                                acc_ng += v;
+                                acc += match &self.spec.grid {
+                                    None => v,
+                                    Some(g) => {
+                                        let (a_x, a_l) = match g.focus_distance_cm {
+                                            None => (dir.axis(self.u_axis), dir.axis(self.n_axis) * self.facing),
+                                            Some(f) => {
+                                                let h = (du * du + f * f).sqrt();
+                                                let (sa, ca) = (du / h, f / h);
+                                                let (au, an) = (dir.axis(self.u_axis), dir.axis(self.n_axis) * self.facing);
+                                                (au * ca - an * sa, au * sa + an * ca)
+                                            }
+                                        };
+                                        let (ms, mi) = grid_mu[k];
+                                        v * super::grid::transmission_local(ms, mi, g.height_cm, g.period_cm, g.strip_width_cm, a_x, a_l)
+                                    }
+                                };
+                            }
                         }
                     }
                 }

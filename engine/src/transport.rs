@@ -623,6 +623,7 @@ pub fn run_chunks_with(
 /// `problem`). Workers score into views of `acc`'s tallies: dense tallies get a zeroed copy per
 /// worker, added at the end; shared tallies (voxel dose grids) are scored into directly, so a
 /// large grid exists once however many threads run and however many calls add to `acc`.
+/// A caller that runs many sets of chunks in turn keeps a [`Workers`] instead.
 pub fn run_chunks_into(
     problem: &Problem,
     settings: &RunSettings,
@@ -632,44 +633,97 @@ pub fn run_chunks_into(
     acc: &mut RunResult,
 ) {
     let start = std::time::Instant::now();
-    let next = AtomicUsize::new(0);
-    let pool = rayon::ThreadPoolBuilder::new().num_threads(settings.threads.max(1)).build().expect("thread pool");
-    let templates = &acc.scorers;
-    let partials: Vec<(Vec<Scorer>, Vec<u64>, u64)> = pool.broadcast(|_| {
-        let mut scorers: Vec<Scorer> = templates.iter().map(Scorer::worker_view).collect();
-        let mut done = Vec::new();
-        let mut histories = 0u64;
-        loop {
-            if stop.is_some_and(|s| s.load(Ordering::Relaxed)) {
-                break;
-            }
-            let i = next.fetch_add(1, Ordering::Relaxed);
-            let Some(&chunk) = chunks.get(i) else { break };
-            let range = chunk_range(chunk, settings.chunk_histories, settings.histories);
-            let n = range.end - range.start;
-            for h in range {
-                problem.run_history(settings.seed, h, &mut scorers);
-            }
-            histories += n;
-            done.push(chunk);
-            if let Some(b) = bar {
-                b.inc(n);
-            }
-        }
-        for s in &mut scorers {
-            s.tally_mut().flush();
-        }
-        (scorers, done, histories)
-    });
-    for (scorers, done, n) in &partials {
-        for (m, s) in acc.scorers.iter_mut().zip(scorers) {
-            m.tally_mut().merge(s.tally());
-        }
-        acc.chunks.extend_from_slice(done);
-        acc.histories += n;
-    }
-    acc.chunks.sort_unstable();
+    let mut workers = Workers::new(settings.threads, acc);
+    workers.run(problem, settings, chunks, stop, bar);
+    workers.gather(acc);
     acc.wall_time_s += start.elapsed().as_secs_f64();
+}
+
+/// What one worker has scored since the last [`Workers::gather`].
+struct WorkerSlot {
+    scorers: Vec<Scorer>,
+    chunks: Vec<u64>,
+    histories: u64,
+}
+
+/// A pool of workers that keep their partial tallies from one set of chunks to the next: a job
+/// run in many waves builds the pool and the per-worker copies of its dense tallies once, and
+/// merges them into the result only when it [`gather`](Workers::gather)s (before a
+/// checkpoint, a target-uncertainty check and at the end), not after every wave. The sums are
+/// exact integers, so when and in which order they are merged changes no bit of the result.
+pub struct Workers {
+    pool: rayon::ThreadPool,
+    slots: Vec<std::sync::Mutex<WorkerSlot>>,
+    pending_chunks: usize,
+}
+
+impl Workers {
+    /// `threads` workers scoring into views of `acc`'s tallies.
+    pub fn new(threads: usize, acc: &RunResult) -> Self {
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(threads.max(1)).build().expect("thread pool");
+        let slots = (0..pool.current_num_threads())
+            .map(|_| std::sync::Mutex::new(WorkerSlot { scorers: acc.scorers.iter().map(Scorer::worker_view).collect(), chunks: Vec::new(), histories: 0 }))
+            .collect();
+        Workers { pool, slots, pending_chunks: 0 }
+    }
+
+    /// Runs `chunks` (workers pull them from a shared counter). If `stop` becomes true, workers
+    /// finish the chunk in hand and return. The scores stay with the workers until
+    /// [`gather`](Self::gather).
+    pub fn run(&mut self, problem: &Problem, settings: &RunSettings, chunks: &[u64], stop: Option<&AtomicBool>, bar: Option<&indicatif::ProgressBar>) {
+        let next = AtomicUsize::new(0);
+        let ran = AtomicUsize::new(0);
+        let slots = &self.slots;
+        self.pool.broadcast(|ctx| {
+            let mut guard = slots[ctx.index()].lock().expect("worker slot");
+            let slot = &mut *guard;
+            loop {
+                if stop.is_some_and(|s| s.load(Ordering::Relaxed)) {
+                    break;
+                }
+                let i = next.fetch_add(1, Ordering::Relaxed);
+                let Some(&chunk) = chunks.get(i) else { break };
+                let range = chunk_range(chunk, settings.chunk_histories, settings.histories);
+                let n = range.end - range.start;
+                for h in range {
+                    problem.run_history(settings.seed, h, &mut slot.scorers);
+                }
+                slot.histories += n;
+                slot.chunks.push(chunk);
+                ran.fetch_add(1, Ordering::Relaxed);
+                if let Some(b) = bar {
+                    b.inc(n);
+                }
+            }
+        });
+        self.pending_chunks += ran.into_inner();
+    }
+
+    /// Chunks run since the last [`gather`](Self::gather).
+    pub fn pending_chunks(&self) -> usize {
+        self.pending_chunks
+    }
+
+    /// Adds the workers' scores, histories and chunks to `acc` and clears the workers' copies.
+    pub fn gather(&mut self, acc: &mut RunResult) {
+        for slot in &self.slots {
+            let mut guard = slot.lock().expect("worker slot");
+            let slot = &mut *guard;
+            if slot.chunks.is_empty() {
+                continue;
+            }
+            for (m, s) in acc.scorers.iter_mut().zip(&mut slot.scorers) {
+                s.tally_mut().flush();
+                m.tally_mut().merge(s.tally());
+                s.tally_mut().clear_flushed();
+            }
+            acc.chunks.append(&mut slot.chunks);
+            acc.histories += slot.histories;
+            slot.histories = 0;
+        }
+        acc.chunks.sort_unstable();
+        self.pending_chunks = 0;
+    }
 }
 
 impl RunResult {
@@ -710,4 +764,41 @@ pub fn progress_bar(settings: &RunSettings, total: u64) -> Option<indicatif::Pro
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
     Some(bar)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn raw(r: &RunResult) -> Vec<(Vec<u128>, Vec<u128>)> {
+        r.scorers.iter().map(|s| s.tally().raw()).collect()
+    }
+
+    /// Workers kept across waves and gathered at irregular points give the same bits as one
+    /// call over all chunks (the sums are exact integers), on any thread count.
+    #[test]
+    fn workers_gathered_at_any_point_give_the_same_bits() {
+        let problem = crate::score::detector::p2::problem(2.0, 5.0, true);
+        let settings = RunSettings { histories: 1_200, seed: 5, chunk_histories: 100, threads: 1, progress: false };
+        let all: Vec<u64> = (0..12).collect();
+        let one = run_chunks(&problem, &settings, &all, None);
+        for threads in [1, 2] {
+            let settings = RunSettings { threads, ..settings.clone() };
+            let mut acc = RunResult::empty(&problem);
+            let mut workers = Workers::new(threads, &acc);
+            workers.run(&problem, &settings, &all[0..3], None, None);
+            workers.gather(&mut acc);
+            workers.run(&problem, &settings, &all[3..7], None, None);
+            workers.run(&problem, &settings, &all[7..9], None, None);
+            assert_eq!(workers.pending_chunks(), 6);
+            workers.gather(&mut acc);
+            workers.gather(&mut acc);
+            workers.run(&problem, &settings, &all[9..12], None, None);
+            workers.gather(&mut acc);
+            assert_eq!(acc.histories, 1_200);
+            assert_eq!(acc.chunks, all);
+            assert!(raw(&one).iter().any(|(s, _)| s.iter().any(|&v| v > 0)), "the run scored something");
+            assert!(raw(&acc) == raw(&one), "{threads} threads: the same sums bit for bit");
+        }
+    }
 }

@@ -5,8 +5,9 @@
 //! # Waves, checkpoints and interruption
 //!
 //! A job runs its chunks in waves of [`WAVE_CHUNKS`] chunks (a fixed number, independent of the
-//! thread count). Between waves the workers' partial tallies are merged (integer sums, exact),
-//! a target uncertainty is checked, and when due a checkpoint `<output>.ckpt` is written
+//! thread count). Workers keep their partial tallies across waves; they are merged into the
+//! job's result (integer sums, exact, so when changes no bit) only when needed: between waves a
+//! target uncertainty is checked on the merged result, and when due a checkpoint `<output>.ckpt` is written
 //! atomically (see `runstate::checkpoint`): every `--checkpoint-every-chunks` chunks, every
 //! `--checkpoint-every-s` seconds (default: the deck's `run.checkpoint_interval_s`, else
 //! [`DEFAULT_CHECKPOINT_S`]). After a complete result is written the checkpoint is removed.
@@ -31,7 +32,7 @@ use crate::results::{now_rfc3339, result_file, RunMeta};
 use crate::runstate::checkpoint::{self, Checkpoint, Header, Job};
 use crate::runstate::{limits, shard, Identity, ShardSpec};
 use crate::setup;
-use crate::transport::{progress_bar, run_chunks_into, RunResult};
+use crate::transport::{progress_bar, RunResult, Workers};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, OnceLock};
@@ -424,6 +425,9 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
         let mut chunks_since = 0u64;
         let remaining: u64 = settings.histories.saturating_sub(acc.histories);
         let bar = progress_bar(&settings, remaining);
+        // The workers keep their partial tallies across waves; they are gathered into `acc`
+        // only for a target-uncertainty check, a checkpoint and at the end.
+        let mut workers = Workers::new(settings.threads, &acc);
         for wave in plan.chunks(WAVE_CHUNKS) {
             let todo: Vec<u64> = wave.iter().copied().filter(|c| acc.chunks.binary_search(c).is_err()).collect();
             if todo.is_empty() {
@@ -432,13 +436,14 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
             if stop.load(Ordering::Relaxed) || interrupted.load(Ordering::Relaxed) {
                 break;
             }
-            let before = acc.chunks.len();
-            run_chunks_into(&problem, &settings, &todo, Some(&stop), bar.as_ref(), &mut acc);
-            chunks_since += (acc.chunks.len() - before) as u64;
+            let before = workers.pending_chunks();
+            workers.run(&problem, &settings, &todo, Some(&stop), bar.as_ref());
+            chunks_since += (workers.pending_chunks() - before) as u64;
             if stop.load(Ordering::Relaxed) {
                 break;
             }
             if let Some((score, relative)) = target {
+                workers.gather(&mut acc);
                 let (mean, sigma) = acc.scorers[score].tally().mean_and_sigma(acc.histories);
                 let peak = (0..mean.len()).max_by(|&a, &b| mean[a].total_cmp(&mean[b]));
                 if let Some(p) = peak {
@@ -448,8 +453,9 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
                     }
                 }
             }
-            let more = acc.chunks.len() < plan.len();
+            let more = acc.chunks.len() + workers.pending_chunks() < plan.len();
             if more && (chunks_since >= every_chunks || last_ckpt.elapsed().as_secs_f64() >= every_s) {
+                workers.gather(&mut acc);
                 if let Err(e) = Checkpoint::write_result(&header(acc.histories, wall_before + session.elapsed().as_secs_f64()), &acc, &ckpt_path) {
                     eprintln!("dosemill: warning: {}: {e}", ckpt_path.display());
                     warnings.push("a checkpoint could not be written".to_string());
@@ -458,6 +464,7 @@ pub fn run_job(input: &JobInput, options: &Options) -> anyhow::Result<JobReport>
                 chunks_since = 0;
             }
         }
+        workers.gather(&mut acc);
         if let Some(b) = bar {
             b.finish_and_clear();
         }

@@ -358,6 +358,21 @@ impl Tally {
         }
     }
 
+    /// Zeroes a flushed worker tally in place, for the next chunks after its sums were merged:
+    /// a dense tally's sums are cleared (no new allocation); a shared view holds nothing of
+    /// its own once flushed.
+    pub fn clear_flushed(&mut self) {
+        match &mut self.store {
+            Store::Dense { sums, pending } => {
+                debug_assert!(pending.used.is_empty(), "clearing an unflushed tally");
+                sums.iter_mut().for_each(|s| *s = [0; 2]);
+            }
+            Store::Shared { pending, .. } => {
+                debug_assert!(pending.used.is_empty(), "clearing an unflushed tally");
+            }
+        }
+    }
+
     /// Adds another (flushed) tally of the same shape into this one. A view of this tally's
     /// own shared sums adds nothing (its histories are in already).
     pub fn merge(&mut self, other: &Tally) {

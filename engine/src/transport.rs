@@ -654,7 +654,6 @@ struct WorkerSlot {
 pub struct Workers {
     pool: rayon::ThreadPool,
     slots: Vec<std::sync::Mutex<WorkerSlot>>,
-    pending_chunks: usize,
 }
 
 impl Workers {
@@ -664,7 +663,7 @@ impl Workers {
         let slots = (0..pool.current_num_threads())
             .map(|_| std::sync::Mutex::new(WorkerSlot { scorers: acc.scorers.iter().map(Scorer::worker_view).collect(), chunks: Vec::new(), histories: 0 }))
             .collect();
-        Workers { pool, slots, pending_chunks: 0 }
+        Workers { pool, slots }
     }
 
     /// Runs `chunks` (workers pull them from a shared counter). If `stop` becomes true, workers
@@ -672,7 +671,6 @@ impl Workers {
     /// [`gather`](Self::gather).
     pub fn run(&mut self, problem: &Problem, settings: &RunSettings, chunks: &[u64], stop: Option<&AtomicBool>, bar: Option<&indicatif::ProgressBar>) {
         let next = AtomicUsize::new(0);
-        let ran = AtomicUsize::new(0);
         let slots = &self.slots;
         self.pool.broadcast(|ctx| {
             let mut guard = slots[ctx.index()].lock().expect("worker slot");
@@ -690,18 +688,16 @@ impl Workers {
                 }
                 slot.histories += n;
                 slot.chunks.push(chunk);
-                ran.fetch_add(1, Ordering::Relaxed);
                 if let Some(b) = bar {
                     b.inc(n);
                 }
             }
         });
-        self.pending_chunks += ran.into_inner();
     }
 
     /// Chunks run since the last [`gather`](Self::gather).
     pub fn pending_chunks(&self) -> usize {
-        self.pending_chunks
+        self.slots.iter().map(|s| s.lock().expect("worker slot").chunks.len()).sum()
     }
 
     /// Adds the workers' scores, histories and chunks to `acc` and clears the workers' copies.
@@ -722,7 +718,6 @@ impl Workers {
             slot.histories = 0;
         }
         acc.chunks.sort_unstable();
-        self.pending_chunks = 0;
     }
 }
 

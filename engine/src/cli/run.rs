@@ -5,9 +5,9 @@
 //! # Waves, checkpoints and interruption
 //!
 //! A job runs its chunks in waves of [`WAVE_CHUNKS`] chunks (a fixed number, independent of the
-//! thread count). Workers keep their partial tallies across waves; they are merged into the
-//! job's result (integer sums, exact, so when changes no bit) only when needed: between waves a
-//! target uncertainty is checked on the merged result, and when due a checkpoint `<output>.ckpt` is written
+//! thread count). Workers keep their partial tallies across waves and merge them into the job's
+//! result only when needed (integer sums: the moment changes no bit): between waves a target
+//! uncertainty is checked on the merged result, and when due a checkpoint `<output>.ckpt` is written
 //! atomically (see `runstate::checkpoint`): every `--checkpoint-every-chunks` chunks, every
 //! `--checkpoint-every-s` seconds (default: the deck's `run.checkpoint_interval_s`, else
 //! [`DEFAULT_CHECKPOINT_S`]). After a complete result is written the checkpoint is removed.

@@ -225,7 +225,9 @@ fn tube_filters_and_detector_are_resolved() {
         panic!("a point source")
     };
     assert_eq!(focal_spot_cm, [0.0, 0.0], "a point focus by default");
+    assert_eq!(d.resolved.source.energy_bias, Some(deck::EnergyBias { toward: "image".into(), floor: 0.2 }));
     let d = good("focal_spot_detector.toml");
+    assert_eq!(d.resolved.source.energy_bias, None, "analog source energies by default");
     let ScoreKind::Detector(det) = &d.resolved.scores[0].kind else {
         panic!()
     };

@@ -252,3 +252,41 @@ forced_detection = {forced}
     compare(&analog, &forced, &[1, 2, 3, 5]);
     compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
 }
+
+/// Source energies drawn toward the detector (`[source.energy_bias]`: q ∝ p × max(floor,
+/// transmission to the face centre), each photon starting with weight p/q) keep every score's
+/// expectation: analog images (primary included) and face sums with the bias against analog
+/// without it, forced detection with the bias against analog, the energy deposited in the
+/// water (z-test, |z| < 4), and energy conservation history by history (deposited + escaped =
+/// weight × energy, 1e-12 relative).
+#[test]
+fn energy_bias_keeps_images_and_deposits_unbiased() {
+    let layers = "[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10";
+    let water = "\n[[score]]\nname = \"water\"\nkind = \"layer_energy\"\n";
+    let bias = format!("{water}\n[source.energy_bias]\ntoward = \"image\"\nfloor = 0.05\n");
+    let biased_problem = problem(&deck(layers, false, &bias, "vacuum"));
+    let weights = biased_problem.source.energy_bias.as_ref().expect("the deck's bias reaches the source").weights().to_vec();
+    let (lo, hi) = weights.iter().fold((f64::INFINITY, 0f64), |(a, b), w| (a.min(*w), b.max(*w)));
+    eprintln!("start weights {lo:.3}–{hi:.3}");
+    assert!(hi / lo > 5.0, "the bias is not a no-op: weights {lo}–{hi}");
+
+    let (analog, sa) = batches(&problem(&deck(layers, false, water, "vacuum")), 300_000, 21);
+    let (biased, sb) = batches(&biased_problem, 300_000, 22);
+    compare(&analog, &biased, &[0, 1, 2, 3, 5]);
+    compare_face_sums(&sa, &sb, &[0, 1, 2, 3, 5]);
+    let (ea, ua) = analog.scorers[1].tally().mean_and_sigma(analog.histories);
+    let (eb, ub) = biased.scorers[1].tally().mean_and_sigma(biased.histories);
+    let z = (ea[0] - eb[0]) / (ua[0].powi(2) + ub[0].powi(2)).sqrt();
+    eprintln!("energy in the water: analog {:.5} ± {:.1e} keV, biased {:.5} ± {:.1e} keV, z = {z:.2}", ea[0], ua[0], eb[0], ub[0]);
+    assert!(z.abs() < 4.0, "energy in the water: analog {} ± {} vs biased {} ± {}", ea[0], ua[0], eb[0], ub[0]);
+
+    let (forced, sf) = batches(&problem(&deck(layers, true, &bias, "vacuum")), 24_000, 23);
+    compare(&analog, &forced, &[1, 2, 3, 5]);
+    compare_face_sums(&sa, &sf, &[1, 2, 3, 5]);
+
+    let mut scorers = biased_problem.scorers.clone();
+    for h in 0..20_000 {
+        let o = biased_problem.run_history(24, h, &mut scorers);
+        assert!((o.deposited_kev + o.escaped_kev - o.incident_kev).abs() <= 1e-12 * o.incident_kev, "history {h}: {o:?}");
+    }
+}

@@ -218,3 +218,38 @@ fn stops_at_a_time_limit() {
         other => panic!("{other:?}"),
     }
 }
+
+/// A deck with `[source.energy_bias]` records how its energies were drawn: read back with h5py,
+/// `drawn_probability` sums to 1 and `drawn_probability × start_weight` equals the spectrum's
+/// `probability` entry by entry (the identity that keeps every score unbiased), with the
+/// detector it was biased toward and the floor as attributes.
+#[test]
+fn energy_bias_is_recorded_in_the_result_file() {
+    let out = temp("bias");
+    let deck = out.join("bias.toml");
+    std::fs::write(
+        &deck,
+        "# Demo scenario (invented).\n[run]\nhistories = 2000\n\n[source]\nkind = \"point\"\nposition_cm = [0, 0, -100]\nfield = { shape = \"rectangle\", width_cm = 10, height_cm = 10 }\nfield_distance_cm = 100\n\n[source.tube]\nkvp = 80\nfilters = [\"Al:2.5\"]\n\n[source.energy_bias]\ntoward = \"image\"\nfloor = 0.05\n\n[geometry]\nkind = \"slabs\"\nstart_z_cm = -12\n[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10\n\n[[score]]\nname = \"image\"\nkind = \"detector\"\nposition_cm = [0, 0, 0]\nsize_cm = [20, 20]\npixel_pitch_cm = 2\n",
+    )
+    .unwrap();
+    let o = dosemill(&["run", deck.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    if !h5py_available() {
+        return;
+    }
+    let script = r#"
+import sys, h5py, numpy as np
+with h5py.File(sys.argv[1], "r") as f:
+    g = f["source_spectrum"]
+    p, q, w = g["probability"][()], g["drawn_probability"][()], g["start_weight"][()]
+    assert g.attrs["energy_bias_toward"] == "image", g.attrs["energy_bias_toward"]
+    assert g.attrs["energy_bias_floor"] == 0.05
+    assert p.shape == q.shape == w.shape and p.size > 10
+    assert abs(q.sum() - 1) < 1e-12, q.sum()
+    assert np.all(np.abs(q * w - p) <= 1e-12), np.max(np.abs(q * w - p))
+    assert w.max() / w.min() > 5, (w.min(), w.max())
+print("ok")
+"#;
+    let c = Command::new("python3").args(["-c", script, out.join("bias.h5").to_str().unwrap()]).output().unwrap();
+    assert!(c.status.success(), "h5py check failed:\n{}{}", String::from_utf8_lossy(&c.stdout), String::from_utf8_lossy(&c.stderr));
+}

@@ -5,7 +5,7 @@
 use crate::deck::{self, ResolvedDeck, ScoreKind, SourceEnergy, SourceShape};
 use crate::physics::{xs::MaterialXs, PhysicsOptions};
 use crate::score::Scorer;
-use crate::source::{AliasTable, Emission, EnergySpectrum, Field, Source};
+use crate::source::{AliasTable, Emission, EnergyBias, EnergySpectrum, Field, Source};
 use crate::spectrum;
 use crate::transport::{Geometry, Problem, RunSettings};
 use dosemill_geometry::{Lateral, Layer, Medium, SlabStack, Vec3};
@@ -42,6 +42,9 @@ pub struct SetupInfo {
     pub world_density_g_cm3: f64,
     /// Field area of the source (cm²) where it has one.
     pub field_area_cm2: Option<f64>,
+    /// `[source.energy_bias]`: (detector name, floor, the probability each spectrum entry is
+    /// drawn with, the weight a photon of that entry starts with).
+    pub energy_bias: Option<(String, f64, Vec<f64>, Vec<f64>)>,
 }
 
 /// A deck score with its engine scorer.
@@ -155,6 +158,35 @@ pub fn tube_of(t: &deck::Tube) -> spectrum::Tube {
         tube = tube.with_filter(&f.material.name, f.thickness_cm * 10.0);
     }
     tube
+}
+
+/// `[source.energy_bias]`: the importance of a spectrum entry is the uncollided transmission
+/// exp(−∫μ ds) at its mid energy along the straight line from the source point (focal spot or
+/// field centre) to the centre of the named detector's face, through the problem's geometry.
+/// The energies that reach the detector get more histories and proportionally smaller weights.
+fn energy_bias(d: &ResolvedDeck, problem: &Problem) -> Result<Option<EnergyBias>, SetupError> {
+    let Some(spec) = &d.source.energy_bias else { return Ok(None) };
+    let key = "source.energy_bias.toward";
+    let det = d
+        .scores
+        .iter()
+        .find_map(|s| match &s.kind {
+            ScoreKind::Detector(det) if s.name == spec.toward => Some(det),
+            _ => None,
+        })
+        .ok_or_else(|| err(key, format!("no detector score named `{}`", spec.toward)))?;
+    let from = match problem.source.emission {
+        Emission::Pencil { origin_cm, .. } | Emission::Parallel { origin_cm, .. } | Emission::Point { origin_cm, .. } => origin_cm,
+    };
+    let to = vec3(det.position_cm);
+    let length = (to - from).norm();
+    let dir = (to - from)
+        .try_normalised()
+        .ok_or_else(|| err(key, "the detector's face centre is the source point: no line to bias along"))?;
+    let bias = EnergyBias::new(&problem.source.spectrum, spec.floor, |lo, hi| {
+        (-crate::raytrace::optical_depth(&problem.geometry, &problem.materials, from, dir, length, 0.5 * (lo + hi))).exp()
+    });
+    bias.map(Some).ok_or_else(|| err(key, "no source energy reaches the detector uncollided: nothing to bias toward"))
 }
 
 /// Builds the problem of a resolved deck.
@@ -366,7 +398,8 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
     }
 
     let field_area_cm2 = source.field_area_cm2();
-    let problem = Problem { materials: mats.tables, geometry, source, options, scorers };
+    let mut problem = Problem { materials: mats.tables, geometry, source, options, scorers };
+    problem.source.energy_bias = energy_bias(d, &problem)?;
     let info = SetupInfo {
         spectrum: info_spectrum,
         beam_quality,
@@ -375,6 +408,10 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
         layers,
         world_density_g_cm3: world_density,
         field_area_cm2,
+        energy_bias: match (&d.source.energy_bias, &problem.source.energy_bias) {
+            (Some(spec), Some(b)) => Some((spec.toward.clone(), spec.floor, b.probabilities(), b.weights().to_vec())),
+            _ => None,
+        },
     };
     Ok((problem, info))
 }

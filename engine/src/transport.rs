@@ -279,11 +279,11 @@ impl Problem {
     /// A pure function of (problem, seed, history): any history can be replayed alone.
     pub fn run_history(&self, seed: u64, history: u64, scorers: &mut [Scorer]) -> HistoryOutcome {
         let mut rng = history_stream(seed, history);
-        let (pos, dir, kev) = self.source.sample(&mut rng);
+        let (pos, dir, kev, weight) = self.source.sample_weighted(&mut rng);
         let segments = self.segments_wanted();
         let sites = self.interactions_wanted();
-        let mut ctx = Ctx { scorers, history, segments, sites, outcome: HistoryOutcome { incident_kev: kev, ..Default::default() } };
-        let mut stack = [Photon::new(pos, dir, kev, 1.0, Region::ESCAPED, false); STACK_DEPTH];
+        let mut ctx = Ctx { scorers, history, segments, sites, outcome: HistoryOutcome { incident_kev: kev * weight, ..Default::default() } };
+        let mut stack = [Photon::new(pos, dir, kev, weight, Region::ESCAPED, false); STACK_DEPTH];
         let mut depth = 1usize;
         stack[0].region = enter_world(&self.geometry, pos, dir, &mut stack[0].pos);
         match &self.geometry {
@@ -773,7 +773,7 @@ mod tests {
     /// call over all chunks (the sums are exact integers), on any thread count.
     #[test]
     fn workers_gathered_at_any_point_give_the_same_bits() {
-        let problem = crate::score::detector::p2::problem(2.0, 5.0, true);
+        let problem = crate::score::detector::p2::problem(2.0, 5.0, crate::score::detector::p2::Estimator::Forced);
         let settings = RunSettings { histories: 1_200, seed: 5, chunk_histories: 100, threads: 1, progress: false };
         let all: Vec<u64> = (0..12).collect();
         let one = run_chunks(&problem, &settings, &all, None);

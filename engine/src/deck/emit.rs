@@ -155,6 +155,12 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
             src["tube"] = Item::Table(tt);
         }
     }
+    if let Some(b) = &r.source.energy_bias {
+        let mut bt = Table::new();
+        bt["toward"] = value(b.toward.as_str());
+        bt["floor"] = value(b.floor);
+        src["energy_bias"] = Item::Table(bt);
+    }
     doc["source"] = Item::Table(src);
 
     if !r.materials.is_empty() {

@@ -65,7 +65,24 @@ pub struct Source {
     pub shape: SourceShape,
     /// Their energies.
     pub energy: SourceEnergy,
+    /// `[source.energy_bias]`: importance sampling of the energy (`None`: analog).
+    pub energy_bias: Option<EnergyBias>,
 }
+
+/// `[source.energy_bias]`: source energies drawn in proportion to the spectrum times an
+/// importance (the uncollided transmission from the source to the centre of a detector face,
+/// raised to a floor), each photon starting with the weight that keeps every score unbiased.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EnergyBias {
+    /// Name of the `kind = "detector"` score whose face centre sets the importance.
+    pub toward: String,
+    /// Floor of the importance relative to its largest value (0 < floor ≤ 1; 1 is analog):
+    /// weights stay below 1 / floor times the spectrum's mean importance.
+    pub floor: f64,
+}
+
+/// Default floor of `[source.energy_bias]`.
+pub const ENERGY_BIAS_FLOOR_DEFAULT: f64 = 0.1;
 
 /// Source geometry. `direction` is as written (not normalised; never zero).
 #[derive(Debug, Clone, PartialEq)]

@@ -43,6 +43,8 @@ pub(crate) struct Walk<'f> {
     pub spectra: Vec<SourceFile>,
     /// The deck named on the command line (for the default output name).
     pub main_deck: PathBuf,
+    /// Where `source.energy_bias.toward` was given (for the cross-check against the scores).
+    energy_bias_loc: Option<Loc>,
 }
 
 fn is_identifier(s: &str) -> bool {
@@ -74,6 +76,7 @@ impl<'f> Walk<'f> {
             uses: Vec::new(),
             spectra: Vec::new(),
             main_deck,
+            energy_bias_loc: None,
         }
     }
 
@@ -223,6 +226,22 @@ impl<'f> Walk<'f> {
                     format!("no score named `{}`", stop.0.score),
                     hint,
                 );
+            }
+        }
+        if let (Some(b), Some(loc)) = (&source.energy_bias, self.energy_bias_loc) {
+            let detectors: Vec<&str> = scores.iter().filter(|s| matches!(s.kind, ScoreKind::Detector(_))).map(|s| s.name.as_str()).collect();
+            if !detectors.contains(&b.toward.as_str()) {
+                let hint = nearest(&b.toward, &detectors).map(|s| format!("did you mean `{s}`?")).or_else(|| {
+                    Some(if detectors.is_empty() {
+                        "the energy bias needs a `[[score]]` with `kind = \"detector\"`; remove `[source.energy_bias]` or add one".to_string()
+                    } else {
+                        format!("detector scores in this deck: {}", detectors.join(", "))
+                    })
+                });
+                self.err(loc, "source.energy_bias.toward", format!("no detector score named `{}`", b.toward), hint);
+            }
+            if let SourceEnergy::Monoenergetic { .. } = source.energy {
+                self.err(loc, "source.energy_bias", "a single-energy source has no energies to bias", Some("remove `[source.energy_bias]`, or give a spectrum (`spectrum_file` or `[source.tube]`)".into()));
             }
         }
         let max_kev = match &source.energy {
@@ -417,6 +436,7 @@ impl<'f> Walk<'f> {
                 "energy_kev",
                 "spectrum_file",
                 "tube",
+                "energy_bias",
             ],
             "`[source]`",
         )?;
@@ -546,13 +566,30 @@ impl<'f> Walk<'f> {
                 focal_spot_cm: focal_spot_cm?,
             },
         };
+        let energy_bias = match t.get("energy_bias") {
+            None => Some(None),
+            Some(b) => self.energy_bias(b).map(Some),
+        };
         if direction?.iter().all(|c| *c == 0.0) {
             return None;
         }
         Some(Source {
             shape,
             energy: energy?,
+            energy_bias: energy_bias?,
         })
+    }
+
+    fn energy_bias(&mut self, n: &Node) -> Option<EnergyBias> {
+        let cx = &mut self.cx;
+        let t = Tbl::new(cx, n, "source.energy_bias", &["toward", "floor"], "`[source.energy_bias]`")?;
+        let toward = t.str_req(cx, "toward", "name the `kind = \"detector\"` score the energies are biased toward, e.g. `toward = \"image\"`");
+        let floor = match t.get("floor") {
+            None => Some(ENERGY_BIAS_FLOOR_DEFAULT),
+            Some(f) => num_in(cx, f, "source.energy_bias.floor", Range { lo: 0.0, hi: 1.0, lo_open: true, hi_open: false, unit: "" }),
+        };
+        self.energy_bias_loc = Some(t.get("toward").map(|x| x.loc).unwrap_or(n.loc));
+        Some(EnergyBias { toward: toward?, floor: floor? })
     }
 
     fn spectrum(&mut self, n: &Node) -> Option<SourceEnergy> {

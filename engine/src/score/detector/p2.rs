@@ -11,9 +11,34 @@ use crate::transport::{run, Problem, RunSettings};
 /// Side of the central ROI of the reference figure (cm).
 pub const REFERENCE_ROI_CM: f64 = 5.0;
 
+/// How P2's detector is scored.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Estimator {
+    /// Photons crossing the face (no variance reduction).
+    Analog,
+    /// Forced detection (next-event points along flights, default settings).
+    Forced,
+    /// Forced detection with the source energies biased toward the detector
+    /// (`[source.energy_bias]`, default floor).
+    ForcedEnergyBias,
+}
+
+impl Estimator {
+    /// The label the benchmarks print.
+    pub fn label(self) -> &'static str {
+        match self {
+            Estimator::Analog => "analog",
+            Estimator::Forced => "forced detection",
+            Estimator::ForcedEnergyBias => "forced + energy bias",
+        }
+    }
+}
+
 /// The deck of P2 with the given pixel pitch (cm; 0.2 for the reference), ROI side (cm),
 /// estimator and histories.
-pub fn deck(pixel_pitch_cm: f64, roi_cm: f64, forced_detection: bool, histories: u64) -> String {
+pub fn deck(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, histories: u64) -> String {
+    let forced_detection = estimator != Estimator::Analog;
+    let energy_bias = if estimator == Estimator::ForcedEnergyBias { "\n[source.energy_bias]\ntoward = \"image\"\n" } else { "" };
     format!(
         r#"# P2: imaging scatter reference problem (demo scenario).
 [run]
@@ -30,7 +55,7 @@ field_distance_cm = 100
 [source.tube]
 kvp = 80
 filters = ["Al:2.5"]
-
+{energy_bias}
 [geometry]
 kind = "slabs"
 world = "vacuum"
@@ -55,8 +80,8 @@ forced_detection = {forced_detection}
 }
 
 /// The P2 problem.
-pub fn problem(pixel_pitch_cm: f64, roi_cm: f64, forced_detection: bool) -> Problem {
-    let text = deck(pixel_pitch_cm, roi_cm, forced_detection, 1);
+pub fn problem(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator) -> Problem {
+    let text = deck(pixel_pitch_cm, roi_cm, estimator, 1);
     let d = crate::deck::load_str(&text, std::path::Path::new("p2.toml")).expect("P2 deck is valid");
     crate::setup::build(&d.resolved).expect("P2 sets up").0
 }
@@ -79,8 +104,8 @@ pub struct Estimate {
 }
 
 /// Runs P2 with one estimator.
-pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, forced_detection: bool, histories: u64, threads: usize) -> Estimate {
-    let p = problem(pixel_pitch_cm, roi_cm, forced_detection);
+pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, histories: u64, threads: usize) -> Estimate {
+    let p = problem(pixel_pitch_cm, roi_cm, estimator);
     let r = run(&p, &RunSettings { histories, seed: 2, chunk_histories: 2_000, threads, progress: false });
     let Scorer::Detector(d) = &r.scorers[0] else { unreachable!("P2 has one detector") };
     let d: &DetectorScorer = d;
@@ -97,10 +122,11 @@ pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, forced_detection: bool, histor
     }
 }
 
-/// Analog and forced-detection estimates of P2 and the efficiency gain of the latter.
-pub fn efficiency_gain(pixel_pitch_cm: f64, roi_cm: f64, analog_histories: u64, forced_histories: u64, threads: usize) -> (Estimate, Estimate, f64) {
-    let a = estimate(pixel_pitch_cm, roi_cm, false, analog_histories, threads);
-    let f = estimate(pixel_pitch_cm, roi_cm, true, forced_histories, threads);
+/// Analog and forced-detection estimates of P2 and the efficiency gain of the latter
+/// (`estimator`: [`Estimator::Forced`] or [`Estimator::ForcedEnergyBias`]).
+pub fn efficiency_gain(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, analog_histories: u64, forced_histories: u64, threads: usize) -> (Estimate, Estimate, f64) {
+    let a = estimate(pixel_pitch_cm, roi_cm, Estimator::Analog, analog_histories, threads);
+    let f = estimate(pixel_pitch_cm, roi_cm, estimator, forced_histories, threads);
     let gain = f.efficiency_per_s / a.efficiency_per_s;
     (a, f, gain)
 }

@@ -175,9 +175,7 @@ fn energy_bias(d: &ResolvedDeck, problem: &Problem) -> Result<Option<EnergyBias>
             _ => None,
         })
         .ok_or_else(|| err(key, format!("no detector score named `{}`", spec.toward)))?;
-    let from = match problem.source.emission {
-        Emission::Pencil { origin_cm, .. } | Emission::Parallel { origin_cm, .. } | Emission::Point { origin_cm, .. } => origin_cm,
-    };
+    let from = problem.source.origin();
     let to = vec3(det.position_cm);
     let length = (to - from).norm();
     let dir = (to - from)

@@ -107,14 +107,9 @@ impl EnergySpectrum {
     pub fn sample(&self, rng: &mut Stream) -> f64 {
         match self {
             EnergySpectrum::Mono(e) => *e,
-            EnergySpectrum::Discrete { kev, table } => kev[table.sample(rng)],
-            EnergySpectrum::Binned { edges_kev, table } => {
+            EnergySpectrum::Discrete { table, .. } | EnergySpectrum::Binned { table, .. } | EnergySpectrum::Ranges { table, .. } => {
                 let i = table.sample(rng);
-                edges_kev[i] + rng.uniform() * (edges_kev[i + 1] - edges_kev[i])
-            }
-            EnergySpectrum::Ranges { lo_kev, hi_kev, table } => {
-                let i = table.sample(rng);
-                lo_kev[i] + rng.uniform() * (hi_kev[i] - lo_kev[i])
+                self.energy_in(i, rng)
             }
         }
     }
@@ -285,23 +280,14 @@ pub fn frame(w: Vec3) -> (Vec3, Vec3) {
 }
 
 impl EnergySpectrum {
-    /// The number of entries the alias table chooses from (1 for a single energy).
-    pub fn entries(&self) -> usize {
+    /// The entries the alias table chooses from, in order: (probability, lower energy, upper
+    /// energy) in keV, equal ends for a line or a single energy.
+    pub fn entries(&self) -> Vec<(f64, f64, f64)> {
         match self {
-            EnergySpectrum::Mono(_) => 1,
-            EnergySpectrum::Discrete { kev, .. } => kev.len(),
-            EnergySpectrum::Binned { edges_kev, .. } => edges_kev.len() - 1,
-            EnergySpectrum::Ranges { lo_kev, .. } => lo_kev.len(),
-        }
-    }
-
-    /// Entry `i`: its probability, and its lower and upper energy (keV; equal for a line).
-    pub fn entry(&self, i: usize) -> (f64, f64, f64) {
-        match self {
-            EnergySpectrum::Mono(e) => (1.0, *e, *e),
-            EnergySpectrum::Discrete { kev, table } => (table.probabilities()[i], kev[i], kev[i]),
-            EnergySpectrum::Binned { edges_kev, table } => (table.probabilities()[i], edges_kev[i], edges_kev[i + 1]),
-            EnergySpectrum::Ranges { lo_kev, hi_kev, table } => (table.probabilities()[i], lo_kev[i], hi_kev[i]),
+            EnergySpectrum::Mono(e) => vec![(1.0, *e, *e)],
+            EnergySpectrum::Discrete { kev, table } => table.probabilities().into_iter().zip(kev).map(|(p, e)| (p, *e, *e)).collect(),
+            EnergySpectrum::Binned { edges_kev, table } => table.probabilities().into_iter().zip(edges_kev.windows(2)).map(|(p, w)| (p, w[0], w[1])).collect(),
+            EnergySpectrum::Ranges { lo_kev, hi_kev, table } => table.probabilities().into_iter().zip(lo_kev.iter().zip(hi_kev)).map(|(p, (lo, hi))| (p, *lo, *hi)).collect(),
         }
     }
 
@@ -333,8 +319,7 @@ impl EnergyBias {
     /// floor `floor` (0 < floor ≤ 1); `None` when no entry has a positive importance.
     pub fn new(spectrum: &EnergySpectrum, floor: f64, mut importance: impl FnMut(f64, f64) -> f64) -> Option<Self> {
         assert!(floor > 0.0 && floor <= 1.0, "energy-bias floor {floor} outside (0, 1]");
-        let n = spectrum.entries();
-        let entries: Vec<(f64, f64, f64)> = (0..n).map(|i| spectrum.entry(i)).collect();
+        let entries = spectrum.entries();
         let imp: Vec<f64> = entries.iter().map(|&(_, lo, hi)| importance(lo, hi).max(0.0)).collect();
         let top = imp.iter().cloned().fold(0.0, f64::max);
         if !(top > 0.0) || !top.is_finite() {
@@ -445,6 +430,13 @@ impl Source {
                     }
                 }
             }
+        }
+    }
+
+    /// The source point: the focal spot's centre, or the centre of a beam's start plane (cm).
+    pub fn origin(&self) -> Vec3 {
+        match self.emission {
+            Emission::Pencil { origin_cm, .. } | Emission::Parallel { origin_cm, .. } | Emission::Point { origin_cm, .. } => origin_cm,
         }
     }
 

@@ -584,31 +584,10 @@ fn spectrum_points(spectrum: &EnergySpectrum) -> Vec<(f64, f64)> {
             out.push((lo + (hi - lo) * (k as f64 + 0.5) / n as f64, p / n as f64));
         }
     };
-    match spectrum {
-        EnergySpectrum::Mono(e) => bins(*e, *e, 1.0),
-        EnergySpectrum::Discrete { kev, table } => {
-            for (e, p) in kev.iter().zip(table.probabilities()) {
-                bins(*e, *e, p);
-            }
-        }
-        EnergySpectrum::Ranges { lo_kev, hi_kev, table } => {
-            for ((lo, hi), p) in lo_kev.iter().zip(hi_kev).zip(table.probabilities()) {
-                bins(*lo, *hi, p);
-            }
-        }
-        EnergySpectrum::Binned { edges_kev, table } => {
-            for (i, p) in table.probabilities().into_iter().enumerate() {
-                bins(edges_kev[i], edges_kev[i + 1], p);
-            }
-        }
+    for (p, lo, hi) in spectrum.entries() {
+        bins(lo, hi, p);
     }
     out
-}
-
-fn source_origin(source: &Source) -> Vec3 {
-    match source.emission {
-        Emission::Pencil { origin_cm, .. } | Emission::Parallel { origin_cm, .. } | Emission::Point { origin_cm, .. } => origin_cm,
-    }
 }
 
 impl DetectorScorer {
@@ -628,7 +607,7 @@ impl DetectorScorer {
             return Err(invalid("detector size must be positive"));
         }
         let plane_cm = spec.center_cm.axis(n);
-        let src = source_origin(source);
+        let src = source.origin();
         let side = src.axis(n) - plane_cm;
         if side == 0.0 {
             return Err(invalid("the source lies in the detector plane; move the detector along its normal axis"));
@@ -1210,7 +1189,7 @@ impl DetectorSetup {
             Some(g) => energies.iter().map(|&(e, _)| g.mu_cm(e)).collect(),
             None => Vec::new(),
         };
-        let origin = source_origin(source);
+        let origin = source.origin();
         let (emission_dir, field) = match source.emission {
             Emission::Pencil { .. } => return,
             Emission::Parallel { direction, field, .. } | Emission::Point { direction, field, .. } => (direction, field),

@@ -112,11 +112,11 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
             g.set_attr(name, *value);
             g.set_attr(&format!("{name}_units"), units.as_str());
         }
-        if let Some((toward, floor, drawn, weight)) = &info.energy_bias {
-            g.set_attr("energy_bias_toward", toward.as_str());
-            g.set_attr("energy_bias_floor", *floor);
-            g.add_dataset(Dataset::f64_1d("drawn_probability", drawn.clone(), "1"));
-            g.add_dataset(Dataset::f64_1d("start_weight", weight.clone(), "1"));
+        if let Some((spec, bias)) = &info.energy_bias {
+            g.set_attr("energy_bias_toward", spec.toward.as_str());
+            g.set_attr("energy_bias_floor", spec.floor);
+            g.add_dataset(Dataset::f64_1d("drawn_probability", bias.probabilities(), "1"));
+            g.add_dataset(Dataset::f64_1d("start_weight", bias.weights().to_vec(), "1"));
         }
         f.add_group(g);
     }

@@ -42,9 +42,9 @@ pub struct SetupInfo {
     pub world_density_g_cm3: f64,
     /// Field area of the source (cm²) where it has one.
     pub field_area_cm2: Option<f64>,
-    /// `[source.energy_bias]`: (detector name, floor, the probability each spectrum entry is
-    /// drawn with, the weight a photon of that entry starts with).
-    pub energy_bias: Option<(String, f64, Vec<f64>, Vec<f64>)>,
+    /// `[source.energy_bias]` as given, and the bias built from it (each entry's draw
+    /// probability and start weight).
+    pub energy_bias: Option<(deck::EnergyBias, EnergyBias)>,
 }
 
 /// A deck score with its engine scorer.
@@ -406,10 +406,7 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
         layers,
         world_density_g_cm3: world_density,
         field_area_cm2,
-        energy_bias: match (&d.source.energy_bias, &problem.source.energy_bias) {
-            (Some(spec), Some(b)) => Some((spec.toward.clone(), spec.floor, b.probabilities(), b.weights().to_vec())),
-            _ => None,
-        },
+        energy_bias: d.source.energy_bias.clone().zip(problem.source.energy_bias.clone()),
     };
     Ok((problem, info))
 }

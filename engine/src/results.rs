@@ -120,6 +120,18 @@ pub fn result_file(info: &SetupInfo, run: &RunResult, meta: &RunMeta) -> ResultF
         }
         f.add_group(g);
     }
+    if let Some((spec, bias)) = &info.field_bias {
+        let mut g = Group::with_kind("source_field_bias", "field_bias");
+        let [nu, nv] = bias.cells();
+        g.set_attr("toward", spec.toward.as_str());
+        g.set_attr("length_cm", spec.length_cm);
+        g.set_attr("floor", spec.floor);
+        g.set_attr("acceptance", bias.acceptance());
+        g.set_attr("layout", "[v, u] cells of equal size over the field rectangle, u along its width");
+        g.add_dataset(Dataset::f64_nd("keep_probability", &[nv, nu], bias.keep_probabilities().to_vec(), "1"));
+        g.add_dataset(Dataset::f64_nd("start_weight", &[nv, nu], bias.weights().to_vec(), "1"));
+        f.add_group(g);
+    }
     if !info.layers.is_empty() {
         let mut g = Group::with_kind("geometry", "layers");
         g.set_attr("names", info.layers.iter().map(|l| l.0.clone()).collect::<Vec<_>>().join(","));

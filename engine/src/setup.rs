@@ -5,7 +5,7 @@
 use crate::deck::{self, ResolvedDeck, ScoreKind, SourceEnergy, SourceShape};
 use crate::physics::{xs::MaterialXs, PhysicsOptions};
 use crate::score::Scorer;
-use crate::source::{AliasTable, Emission, EnergyBias, EnergySpectrum, Field, Source};
+use crate::source::{AliasTable, Emission, EnergyBias, EnergySpectrum, Field, FieldBias, Source};
 use crate::spectrum;
 use crate::transport::{Geometry, Problem, RunSettings};
 use dosemill_geometry::{Lateral, Layer, Medium, SlabStack, Vec3};
@@ -45,6 +45,9 @@ pub struct SetupInfo {
     /// `[source.energy_bias]` as given, and the bias built from it (each entry's draw
     /// probability and start weight).
     pub energy_bias: Option<(deck::EnergyBias, EnergyBias)>,
+    /// `[source.field_bias]` as given, and the bias built from it (each cell's keep
+    /// probability and start weight).
+    pub field_bias: Option<(deck::FieldBias, FieldBias)>,
 }
 
 /// A deck score with its engine scorer.
@@ -185,6 +188,29 @@ fn energy_bias(d: &ResolvedDeck, problem: &Problem) -> Result<Option<EnergyBias>
         (-crate::raytrace::optical_depth(&problem.geometry, &problem.materials, from, dir, length, 0.5 * (lo + hi))).exp()
     });
     bias.map(Some).ok_or_else(|| err(key, "no source energy reaches the detector uncollided: nothing to bias toward"))
+}
+
+/// `[source.field_bias]`: the importance of a field cell is exp(−d / L), d the distance in the
+/// named detector's plane from where the ray through the cell centre meets the plane to the
+/// detector's central ROI (0 inside it), L = `length_cm`; a ray that never reaches the plane
+/// has importance 0 (the floor keeps it possible).
+fn field_bias(d: &ResolvedDeck, problem: &Problem) -> Result<Option<FieldBias>, SetupError> {
+    let Some(spec) = &d.source.field_bias else { return Ok(None) };
+    let key = "source.field_bias.toward";
+    let det = d
+        .scores
+        .iter()
+        .position(|s| s.name == spec.toward && matches!(s.kind, ScoreKind::Detector(_)))
+        .and_then(|i| match &problem.scorers[i] {
+            crate::score::Scorer::Detector(det) => Some(det),
+            _ => None,
+        })
+        .ok_or_else(|| err(key, format!("no detector score named `{}`", spec.toward)))?;
+    let bias = FieldBias::new(&problem.source.emission, spec.floor, |from, dir| match det.roi_miss_cm(from, dir) {
+        Some(miss) => (-miss / spec.length_cm).exp(),
+        None => 0.0,
+    });
+    bias.map(Some).map_err(|m| err("source.field_bias", m))
 }
 
 /// Builds the problem of a resolved deck.
@@ -398,6 +424,7 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
     let field_area_cm2 = source.field_area_cm2();
     let mut problem = Problem { materials: mats.tables, geometry, source, options, scorers };
     problem.source.energy_bias = energy_bias(d, &problem)?;
+    problem.source.field_bias = field_bias(d, &problem)?;
     let info = SetupInfo {
         spectrum: info_spectrum,
         beam_quality,
@@ -407,6 +434,7 @@ pub fn build(d: &ResolvedDeck) -> Result<(Problem, SetupInfo), SetupError> {
         world_density_g_cm3: world_density,
         field_area_cm2,
         energy_bias: d.source.energy_bias.clone().zip(problem.source.energy_bias.clone()),
+        field_bias: d.source.field_bias.clone().zip(problem.source.field_bias.clone()),
     };
     Ok((problem, info))
 }

@@ -344,6 +344,113 @@ impl EnergyBias {
     }
 }
 
+/// Importance sampling of the start direction over a rectangular field: the field (in its
+/// plane) is cut into `n_u × n_v` equal cells, cell c gets the factor b_c = f + (1 − f) I_c / max I
+/// (importance I ≥ 0, floor 0 < f ≤ 1), and an analog start ray through cell c is kept with
+/// probability b_c (otherwise drawn again). Kept rays follow q = p b / Z with
+/// Z = Σ_c P_c b_c, P_c the analog probability of cell c, so a photon through cell c starts with
+/// weight Z / b_c and every score keeps its expectation. P_c is exact: 1 / (n_u n_v) for a
+/// parallel beam, and for a point focus the cell's solid angle over the field's, both in closed
+/// form ([`Field::solid_angle_from`] of the cell rectangle); a focal spot or a circular field has
+/// no closed form and is refused.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FieldBias {
+    cells: [usize; 2],
+    half_cm: [f64; 2],
+    cell_cm: [f64; 2],
+    keep: Vec<f64>,
+    weight: Vec<f64>,
+}
+
+impl FieldBias {
+    /// Largest cell side (cm) and most cells per axis.
+    pub const CELL_CM: f64 = 0.5;
+    /// Most cells per field axis.
+    pub const MAX_CELLS: usize = 256;
+
+    /// The bias of `emission`'s field for importance `importance(start, direction)` of the ray
+    /// through each cell centre and floor `floor`. `Err` names what the emission lacks.
+    pub fn new(emission: &Emission, floor: f64, mut importance: impl FnMut(Vec3, Vec3) -> f64) -> Result<Self, String> {
+        assert!(floor > 0.0 && floor <= 1.0, "field-bias floor {floor} outside (0, 1]");
+        let (field, distance) = match *emission {
+            Emission::Pencil { .. } => return Err("a pencil beam has no field to bias".into()),
+            Emission::Parallel { field, .. } => (field, None),
+            Emission::Point { field, field_distance_cm, focal_spot_cm: [fw, fh], .. } => {
+                if fw > 0.0 || fh > 0.0 {
+                    return Err("the field bias needs a point focus (`focal_spot_cm = [0, 0]`)".into());
+                }
+                (field, Some(field_distance_cm))
+            }
+        };
+        let Field::Rectangle { width_cm, height_cm } = field else {
+            return Err("the field bias needs a rectangular field".into());
+        };
+        let n = |s: f64| ((s / Self::CELL_CM).ceil() as usize).clamp(1, Self::MAX_CELLS);
+        let cells = [n(width_cm), n(height_cm)];
+        let cell_cm = [width_cm / cells[0] as f64, height_cm / cells[1] as f64];
+        let half_cm = [0.5 * width_cm, 0.5 * height_cm];
+        let src = Source::new(*emission, EnergySpectrum::Mono(1.0));
+        let (u, v) = (src.frame_u, src.frame_v);
+        let mut prob = Vec::with_capacity(cells[0] * cells[1]);
+        let mut imp = Vec::with_capacity(cells[0] * cells[1]);
+        for iv in 0..cells[1] {
+            for iu in 0..cells[0] {
+                let a = -half_cm[0] + (iu as f64 + 0.5) * cell_cm[0];
+                let b = -half_cm[1] + (iv as f64 + 0.5) * cell_cm[1];
+                let (p, start, dir) = match *emission {
+                    Emission::Parallel { origin_cm, direction, .. } => (1.0, origin_cm + u * a + v * b, direction),
+                    Emission::Point { origin_cm, direction, .. } => {
+                        let d = distance.unwrap_or(1.0);
+                        let cell = Field::Rectangle { width_cm: cell_cm[0], height_cm: cell_cm[1] };
+                        let to = u * a + v * b + direction * d;
+                        (cell.solid_angle_from(d, -a, -b), origin_cm, to * (1.0 / to.norm()))
+                    }
+                    Emission::Pencil { .. } => unreachable!(),
+                };
+                prob.push(p);
+                imp.push(importance(start, dir).max(0.0));
+            }
+        }
+        let top = imp.iter().cloned().fold(0.0, f64::max);
+        if !(top > 0.0) || !top.is_finite() {
+            return Err("no ray of the field has a positive importance".into());
+        }
+        let total: f64 = prob.iter().sum();
+        let keep: Vec<f64> = imp.iter().map(|i| floor + (1.0 - floor) * i / top).collect();
+        let z: f64 = prob.iter().zip(&keep).map(|(p, k)| p / total * k).sum();
+        let weight = keep.iter().map(|k| z / k).collect();
+        Ok(Self { cells, half_cm, cell_cm, keep, weight })
+    }
+
+    /// Cell of field coordinates (u, v) (cm from the field centre).
+    #[inline]
+    fn cell(&self, a: f64, b: f64) -> usize {
+        let iu = (((a + self.half_cm[0]) / self.cell_cm[0]) as usize).min(self.cells[0] - 1);
+        let iv = (((b + self.half_cm[1]) / self.cell_cm[1]) as usize).min(self.cells[1] - 1);
+        iv * self.cells[0] + iu
+    }
+
+    /// Cells [n_u, n_v].
+    pub fn cells(&self) -> [usize; 2] {
+        self.cells
+    }
+
+    /// Per cell (row-major, v then u): the probability b_c of keeping a ray drawn through it.
+    pub fn keep_probabilities(&self) -> &[f64] {
+        &self.keep
+    }
+
+    /// Per cell (row-major): the start weight Z / b_c.
+    pub fn weights(&self) -> &[f64] {
+        &self.weight
+    }
+
+    /// Fraction of analog rays kept (Z): the cost of the bias in source draws is 1 / Z.
+    pub fn acceptance(&self) -> f64 {
+        self.keep[0] * self.weight[0]
+    }
+}
+
 /// A source: emission geometry and energy spectrum.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Source {
@@ -353,6 +460,8 @@ pub struct Source {
     pub spectrum: EnergySpectrum,
     /// Importance sampling of the energy (`None`: analog, every photon starts with weight 1).
     pub energy_bias: Option<EnergyBias>,
+    /// Importance sampling of the start direction over the field (`None`: analog).
+    pub field_bias: Option<FieldBias>,
     frame_u: Vec3,
     frame_v: Vec3,
     cos_max: f64,
@@ -373,7 +482,7 @@ impl Source {
             }
             _ => 1.0,
         };
-        Self { emission, spectrum, energy_bias: None, frame_u, frame_v, cos_max }
+        Self { emission, spectrum, energy_bias: None, field_bias: None, frame_u, frame_v, cos_max }
     }
 
     /// Starting position, direction and energy of one photon (its weight is
@@ -395,26 +504,39 @@ impl Source {
                 (self.spectrum.energy_in(i, rng), b.weight[i])
             }
         };
-        let (pos, dir) = self.sample_ray(rng);
-        (pos, dir, kev, weight)
+        let (pos, dir, ray_weight) = self.sample_ray(rng);
+        (pos, dir, kev, weight * ray_weight)
     }
 
-    /// Starting position and direction of one photon.
+    /// Starting position and direction of one photon, and the weight of the field bias (1
+    /// without one).
     #[inline]
-    fn sample_ray(&self, rng: &mut Stream) -> (Vec3, Vec3) {
+    fn sample_ray(&self, rng: &mut Stream) -> (Vec3, Vec3, f64) {
         let (u, v) = (self.frame_u, self.frame_v);
         match self.emission {
-            Emission::Pencil { origin_cm, direction } => (origin_cm, direction),
-            Emission::Parallel { origin_cm, direction, field } => {
+            Emission::Pencil { origin_cm, direction } => (origin_cm, direction, 1.0),
+            Emission::Parallel { origin_cm, direction, field } => loop {
                 let (a, b) = field.sample(rng);
-                (origin_cm + u * a + v * b, direction)
-            }
+                let weight = match &self.field_bias {
+                    None => 1.0,
+                    Some(fb) => {
+                        let c = fb.cell(a, b);
+                        if rng.uniform() >= fb.keep[c] {
+                            continue;
+                        }
+                        fb.weight[c]
+                    }
+                };
+                return (origin_cm + u * a + v * b, direction, weight);
+            },
             Emission::Point { origin_cm, direction: w, field, field_distance_cm, focal_spot_cm: [fw, fh] } => {
                 // A spot point (none drawn for a point focus) and a direction isotropic within
                 // the cone around w that holds the aperture, both drawn again unless the ray
                 // passes through the field: the accepted pairs are uniform in spot area × solid
                 // angle, so each spot point emits in proportion to the aperture's solid angle
-                // from it (uniform intensity per unit solid angle over the spot).
+                // from it (uniform intensity per unit solid angle over the spot). With a field
+                // bias (point focus only) a ray through the field is then kept with its cell's
+                // probability, else drawn again.
                 let spot = fw > 0.0 || fh > 0.0;
                 loop {
                     let (sa, sb) = if spot { ((rng.uniform() - 0.5) * fw, (rng.uniform() - 0.5) * fh) } else { (0.0, 0.0) };
@@ -423,10 +545,21 @@ impl Source {
                     let phi = std::f64::consts::TAU * rng.uniform();
                     let (a, b) = (s * phi.cos(), s * phi.sin());
                     let t = field_distance_cm / c;
-                    if field.contains(sa + a * t, sb + b * t) {
+                    let (fa, fb_) = (sa + a * t, sb + b * t);
+                    if field.contains(fa, fb_) {
+                        let weight = match &self.field_bias {
+                            None => 1.0,
+                            Some(fb) => {
+                                let k = fb.cell(fa, fb_);
+                                if rng.uniform() >= fb.keep[k] {
+                                    continue;
+                                }
+                                fb.weight[k]
+                            }
+                        };
                         let d = u * a + v * b + w * c;
                         let start = if spot { origin_cm + u * sa + v * sb } else { origin_cm };
-                        return (start, d);
+                        return (start, d, weight);
                     }
                 }
             }
@@ -531,6 +664,85 @@ mod tests {
     }
 
     /// Without a bias the weighted sampler draws the same numbers as before (weight 1).
+    /// Weighted mean of `f(a, b)` (field-plane coordinates of the start ray) over `n` biased
+    /// draws, with its standard error.
+    fn weighted_mean(source: &Source, n: usize, seed: u64, f: impl Fn(f64, f64) -> f64) -> (f64, f64) {
+        let (u, v) = frame(Vec3::new(0.0, 0.0, 1.0));
+        let mut rng = crate::rng::history_stream(seed, 0);
+        let (mut s1, mut s2) = (0.0, 0.0);
+        for _ in 0..n {
+            let (pos, dir, _, weight) = source.sample_weighted(&mut rng);
+            // Where the ray meets the plane z = 100 (the field plane of both test sources).
+            let t = (100.0 - pos.z) / dir.z;
+            let q = pos + dir * t;
+            let x = weight * f(q.dot(u), q.dot(v));
+            s1 += x;
+            s2 += x * x;
+        }
+        let m = s1 / n as f64;
+        (m, ((s2 / n as f64 - m * m) / (n as f64 - 1.0)).sqrt())
+    }
+
+    #[test]
+    fn field_bias_keeps_the_expectation() {
+        // Parallel beam, 20 × 10 cm field in the plane z = 100: analog start points are uniform,
+        // so E[1] = 1, E[a²] = W²/12 and P(a > 4) = 6/20 exactly.
+        let field = Field::Rectangle { width_cm: 20.0, height_cm: 10.0 };
+        let parallel = Emission::Parallel { origin_cm: Vec3::new(0.0, 0.0, 100.0), direction: Vec3::new(0.0, 0.0, 1.0), field };
+        let (u, v) = frame(Vec3::new(0.0, 0.0, 1.0));
+        let imp = |p: Vec3, _d: Vec3| (-((p.dot(u) - 3.0).powi(2) + (p.dot(v) + 1.0).powi(2)).sqrt() / 4.0).exp();
+        let floor = 0.05;
+        let fb = FieldBias::new(&parallel, floor, imp).unwrap();
+        assert_eq!(fb.cells(), [40, 20]);
+        let z = fb.acceptance();
+        let mean_keep: f64 = fb.keep_probabilities().iter().sum::<f64>() / 800.0;
+        assert!((z - mean_keep).abs() < 1e-12, "Z = Σ P_c b_c with equal cells: {z} vs {mean_keep}");
+        for (k, w) in fb.keep_probabilities().iter().zip(fb.weights()) {
+            assert!((k * w - z).abs() < 1e-12 && *k >= floor && *k <= 1.0 && *w <= z / floor * (1.0 + 1e-12));
+        }
+        let mut source = Source::new(parallel, EnergySpectrum::Mono(50.0));
+        source.field_bias = Some(fb);
+        let n = 400_000;
+        for (name, f, exact) in [
+            ("E[1]", &(|_: f64, _: f64| 1.0) as &dyn Fn(f64, f64) -> f64, 1.0),
+            ("E[a²]", &|a: f64, _: f64| a * a, 400.0 / 12.0),
+            ("P(a > 4)", &|a: f64, _: f64| if a > 4.0 { 1.0 } else { 0.0 }, 0.3),
+        ] {
+            let (m, sigma) = weighted_mean(&source, n, 21, f);
+            assert!(((m - exact) / sigma).abs() < 4.0, "parallel beam {name}: {m} ± {sigma} vs {exact}");
+        }
+
+        // Point focus 100 cm from a 30 × 30 cm field: the analog probability that a ray passes
+        // a > 5 cm is the solid angle of the sub-rectangle [5, 15] × [−15, 15] over the field's
+        // (closed form, Field::solid_angle_from).
+        let field = Field::Rectangle { width_cm: 30.0, height_cm: 30.0 };
+        let point = Emission::Point { origin_cm: Vec3::new(0.0, 0.0, 0.0), direction: Vec3::new(0.0, 0.0, 1.0), field, field_distance_cm: 100.0, focal_spot_cm: [0.0, 0.0] };
+        let toward = |_: Vec3, d: Vec3| {
+            let (a, b) = (100.0 * d.dot(u) / d.z, 100.0 * d.dot(v) / d.z);
+            (-(a * a + b * b).sqrt() / 8.0).exp()
+        };
+        let fb = FieldBias::new(&point, 0.1, toward).unwrap();
+        assert!(fb.acceptance() < 0.6, "a real bias keeps only part of the rays: {}", fb.acceptance());
+        let mut source = Source::new(point, EnergySpectrum::Mono(50.0));
+        source.field_bias = Some(fb);
+        let exact = Field::Rectangle { width_cm: 10.0, height_cm: 30.0 }.solid_angle_from(100.0, -10.0, 0.0) / field.solid_angle_from(100.0, 0.0, 0.0);
+        let (m, sigma) = weighted_mean(&source, n, 22, |a, _| if a > 5.0 { 1.0 } else { 0.0 });
+        assert!(((m - exact) / sigma).abs() < 4.0, "point focus P(a > 5): {m} ± {sigma} vs {exact}");
+        let (m, sigma) = weighted_mean(&source, n, 23, |_, _| 1.0);
+        assert!(((m - 1.0) / sigma).abs() < 4.0, "point focus E[w] = {m} ± {sigma}");
+
+        // What has no closed-form cell probability is refused.
+        let o = Vec3::new(0.0, 0.0, 0.0);
+        let axis = Vec3::new(0.0, 0.0, 1.0);
+        let circle = Emission::Point { origin_cm: o, direction: axis, field: Field::Circle { radius_cm: 10.0 }, field_distance_cm: 100.0, focal_spot_cm: [0.0, 0.0] };
+        let spot = Emission::Point { origin_cm: o, direction: axis, field, field_distance_cm: 100.0, focal_spot_cm: [0.1, 0.1] };
+        let pencil = Emission::Pencil { origin_cm: Vec3::new(0.0, 0.0, 0.0), direction: Vec3::new(0.0, 0.0, 1.0) };
+        for e in [circle, spot, pencil] {
+            assert!(FieldBias::new(&e, 0.1, toward).is_err());
+        }
+        assert!(FieldBias::new(&point, 0.1, |_, _| 0.0).is_err(), "no importance anywhere: no bias");
+    }
+
     #[test]
     fn unbiased_source_has_unit_weights() {
         let spectrum = EnergySpectrum::Binned { edges_kev: vec![10.0, 20.0, 30.0], table: AliasTable::new(&[1.0, 2.0]).unwrap() };

@@ -161,6 +161,13 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
         bt["floor"] = value(b.floor);
         src["energy_bias"] = Item::Table(bt);
     }
+    if let Some(b) = &r.source.field_bias {
+        let mut bt = Table::new();
+        bt["toward"] = value(b.toward.as_str());
+        bt["length_cm"] = value(b.length_cm);
+        bt["floor"] = value(b.floor);
+        src["field_bias"] = Item::Table(bt);
+    }
     doc["source"] = Item::Table(src);
 
     if !r.materials.is_empty() {

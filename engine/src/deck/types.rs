@@ -67,6 +67,8 @@ pub struct Source {
     pub energy: SourceEnergy,
     /// `[source.energy_bias]`: importance sampling of the energy (`None`: analog).
     pub energy_bias: Option<EnergyBias>,
+    /// `[source.field_bias]`: importance sampling of the start direction (`None`: analog).
+    pub field_bias: Option<FieldBias>,
 }
 
 /// `[source.energy_bias]`: source energies drawn in proportion to the spectrum times an
@@ -83,6 +85,26 @@ pub struct EnergyBias {
 
 /// Default floor of `[source.energy_bias]`.
 pub const ENERGY_BIAS_FLOOR_DEFAULT: f64 = 0.1;
+
+/// `[source.field_bias]`: start rays drawn over the field in proportion to an importance that
+/// falls off with the distance between where the ray meets a detector's plane and that
+/// detector's central ROI, each photon starting with the weight that keeps every score
+/// unbiased.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FieldBias {
+    /// Name of the `kind = "detector"` score whose ROI sets the importance.
+    pub toward: String,
+    /// e-folding length of the importance with the distance from the ROI, in the detector's
+    /// plane (cm).
+    pub length_cm: f64,
+    /// Floor of the importance relative to its largest value (0 < floor ≤ 1; 1 is analog).
+    pub floor: f64,
+}
+
+/// Default floor of `[source.field_bias]`.
+pub const FIELD_BIAS_FLOOR_DEFAULT: f64 = 0.1;
+/// Default e-folding length of `[source.field_bias]` (cm).
+pub const FIELD_BIAS_LENGTH_DEFAULT_CM: f64 = 8.0;
 
 /// Source geometry. `direction` is as written (not normalised; never zero).
 #[derive(Debug, Clone, PartialEq)]

@@ -45,6 +45,8 @@ pub(crate) struct Walk<'f> {
     pub main_deck: PathBuf,
     /// Where `source.energy_bias.toward` was given (for the cross-check against the scores).
     energy_bias_loc: Option<Loc>,
+    /// Where `[source.field_bias]` (its `toward`) was given.
+    field_bias_loc: Option<Loc>,
 }
 
 fn is_identifier(s: &str) -> bool {
@@ -77,6 +79,7 @@ impl<'f> Walk<'f> {
             spectra: Vec::new(),
             main_deck,
             energy_bias_loc: None,
+            field_bias_loc: None,
         }
     }
 
@@ -242,6 +245,32 @@ impl<'f> Walk<'f> {
             }
             if let SourceEnergy::Monoenergetic { .. } = source.energy {
                 self.err(loc, "source.energy_bias", "a single-energy source has no energies to bias", Some("remove `[source.energy_bias]`, or give a spectrum (`spectrum_file` or `[source.tube]`)".into()));
+            }
+        }
+        if let (Some(b), Some(loc)) = (&source.field_bias, self.field_bias_loc) {
+            let detectors: Vec<&str> = scores.iter().filter(|s| matches!(s.kind, ScoreKind::Detector(_))).map(|s| s.name.as_str()).collect();
+            if !detectors.contains(&b.toward.as_str()) {
+                let hint = nearest(&b.toward, &detectors).map(|s| format!("did you mean `{s}`?")).or_else(|| {
+                    Some(if detectors.is_empty() {
+                        "the field bias needs a `[[score]]` with `kind = \"detector\"`; remove `[source.field_bias]` or add one".to_string()
+                    } else {
+                        format!("detector scores in this deck: {}", detectors.join(", "))
+                    })
+                });
+                self.err(loc, "source.field_bias.toward", format!("no detector score named `{}`", b.toward), hint);
+            }
+            let refused = match &source.shape {
+                SourceShape::Pencil { .. } => Some(("a pencil beam has no field to bias", "remove `[source.field_bias]`, or use `kind = \"parallel\"` or `\"point\"` with a rectangular field")),
+                SourceShape::Parallel { field: Field::Circle { .. }, .. } | SourceShape::Point { field: Field::Circle { .. }, .. } => {
+                    Some(("the field bias needs a rectangular field", "use `field = { shape = \"rectangle\", … }`, or remove `[source.field_bias]`"))
+                }
+                SourceShape::Point { focal_spot_cm: [fw, fh], .. } if *fw > 0.0 || *fh > 0.0 => {
+                    Some(("the field bias needs a point focus", "set `focal_spot_cm = [0, 0]`, or remove `[source.field_bias]`"))
+                }
+                _ => None,
+            };
+            if let Some((msg, hint)) = refused {
+                self.err(loc, "source.field_bias", msg, Some(hint.into()));
             }
         }
         let max_kev = match &source.energy {
@@ -437,6 +466,7 @@ impl<'f> Walk<'f> {
                 "spectrum_file",
                 "tube",
                 "energy_bias",
+                "field_bias",
             ],
             "`[source]`",
         )?;
@@ -570,6 +600,10 @@ impl<'f> Walk<'f> {
             None => Some(None),
             Some(b) => self.energy_bias(b).map(Some),
         };
+        let field_bias = match t.get("field_bias") {
+            None => Some(None),
+            Some(b) => self.field_bias(b).map(Some),
+        };
         if direction?.iter().all(|c| *c == 0.0) {
             return None;
         }
@@ -577,7 +611,24 @@ impl<'f> Walk<'f> {
             shape,
             energy: energy?,
             energy_bias: energy_bias?,
+            field_bias: field_bias?,
         })
+    }
+
+    fn field_bias(&mut self, n: &Node) -> Option<FieldBias> {
+        let cx = &mut self.cx;
+        let t = Tbl::new(cx, n, "source.field_bias", &["toward", "length_cm", "floor"], "`[source.field_bias]`")?;
+        let toward = t.str_req(cx, "toward", "name the `kind = \"detector\"` score whose ROI the start rays are biased toward, e.g. `toward = \"image\"`");
+        let length_cm = match t.get("length_cm") {
+            None => Some(FIELD_BIAS_LENGTH_DEFAULT_CM),
+            Some(f) => num_in(cx, f, "source.field_bias.length_cm", Range { lo: 0.0, hi: 1e4, lo_open: true, hi_open: false, unit: "cm" }),
+        };
+        let floor = match t.get("floor") {
+            None => Some(FIELD_BIAS_FLOOR_DEFAULT),
+            Some(f) => num_in(cx, f, "source.field_bias.floor", Range { lo: 0.0, hi: 1.0, lo_open: true, hi_open: false, unit: "" }),
+        };
+        self.field_bias_loc = Some(t.get("toward").map(|x| x.loc).unwrap_or(n.loc));
+        Some(FieldBias { toward: toward?, length_cm: length_cm?, floor: floor? })
     }
 
     fn energy_bias(&mut self, n: &Node) -> Option<EnergyBias> {

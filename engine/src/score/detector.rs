@@ -706,6 +706,25 @@ impl DetectorScorer {
         self.setup.spec.forced_detection
     }
 
+    /// Where the straight ray from `from` along `dir` meets the plane of the face, the distance
+    /// (cm, in the plane) from that point to the central ROI rectangle: 0 inside it; `None` when
+    /// the ray does not reach the plane moving the way counted photons move.
+    pub fn roi_miss_cm(&self, from: Vec3, dir: Vec3) -> Option<f64> {
+        let s = &*self.setup;
+        let dn = dir.axis(s.n_axis) * s.facing;
+        let h = (s.plane_cm - from.axis(s.n_axis)) * s.facing;
+        if !(dn > 0.0) || h < 0.0 {
+            return None;
+        }
+        let t = h / dn;
+        let du = from.axis(s.u_axis) + dir.axis(s.u_axis) * t - s.center_u;
+        let dv = from.axis(s.v_axis) + dir.axis(s.v_axis) * t - s.center_v;
+        let [u0, u1, v0, v1] = s.roi_edges_cm;
+        let x = (u0 - du).max(du - u1).max(0.0);
+        let y = (v0 - dv).max(dv - v1).max(0.0);
+        Some((x * x + y * y).sqrt())
+    }
+
     /// Pixels per image.
     pub fn pixel_count(&self) -> usize {
         self.setup.spec.pixels[0] * self.setup.spec.pixels[1]

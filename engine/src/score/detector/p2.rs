@@ -21,6 +21,9 @@ pub enum Estimator {
     /// Forced detection with the source energies biased toward the detector
     /// (`[source.energy_bias]`, default floor).
     ForcedEnergyBias,
+    /// Forced detection with the energy bias and the start rays biased toward the ROI
+    /// (`[source.field_bias]`, default length and floor).
+    ForcedBothBiases,
 }
 
 impl Estimator {
@@ -30,6 +33,7 @@ impl Estimator {
             Estimator::Analog => "analog",
             Estimator::Forced => "forced detection",
             Estimator::ForcedEnergyBias => "forced + energy bias",
+            Estimator::ForcedBothBiases => "forced + both biases",
         }
     }
 }
@@ -38,7 +42,11 @@ impl Estimator {
 /// estimator and histories.
 pub fn deck(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, histories: u64) -> String {
     let forced_detection = estimator != Estimator::Analog;
-    let energy_bias = if estimator == Estimator::ForcedEnergyBias { "\n[source.energy_bias]\ntoward = \"image\"\n" } else { "" };
+    let energy_bias = match estimator {
+        Estimator::ForcedEnergyBias => "\n[source.energy_bias]\ntoward = \"image\"\n",
+        Estimator::ForcedBothBiases => "\n[source.energy_bias]\ntoward = \"image\"\n\n[source.field_bias]\ntoward = \"image\"\n",
+        _ => "",
+    };
     format!(
         r#"# P2: imaging scatter reference problem (demo scenario).
 [run]
@@ -123,7 +131,7 @@ pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, historie
 }
 
 /// Analog and forced-detection estimates of P2 and the efficiency gain of the latter
-/// (`estimator`: [`Estimator::Forced`] or [`Estimator::ForcedEnergyBias`]).
+/// (`estimator`: any but [`Estimator::Analog`]).
 pub fn efficiency_gain(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, analog_histories: u64, forced_histories: u64, threads: usize) -> (Estimate, Estimate, f64) {
     let a = estimate(pixel_pitch_cm, roi_cm, Estimator::Analog, analog_histories, threads);
     let f = estimate(pixel_pitch_cm, roi_cm, estimator, forced_histories, threads);

@@ -253,3 +253,40 @@ print("ok")
     let c = Command::new("python3").args(["-c", script, out.join("bias.h5").to_str().unwrap()]).output().unwrap();
     assert!(c.status.success(), "h5py check failed:\n{}{}", String::from_utf8_lossy(&c.stdout), String::from_utf8_lossy(&c.stderr));
 }
+
+/// `[source.field_bias]` through the real binary: the result file's `source_field_bias` group
+/// holds the deck's settings and per-cell keep probabilities b_c and start weights w_c with
+/// b_c w_c = Z (the acceptance) for every cell, 1 as the largest b_c and the smallest at or above
+/// the floor and well below 1 (the 2 cm ROI snaps to whole 2 cm pixels, 4 cm here)
+/// (h5py reads them back).
+#[test]
+fn field_bias_is_recorded_in_the_result_file() {
+    let out = temp("field_bias");
+    let deck = out.join("fb.toml");
+    std::fs::write(
+        &deck,
+        "# Demo scenario (invented).\n[run]\nhistories = 2000\n\n[source]\nkind = \"point\"\nposition_cm = [0, 0, -100]\nfield = { shape = \"rectangle\", width_cm = 12, height_cm = 8 }\nfield_distance_cm = 100\nenergy_kev = 60\n\n[source.field_bias]\ntoward = \"image\"\nlength_cm = 2\nfloor = 0.2\n\n[geometry]\nkind = \"slabs\"\nstart_z_cm = -12\n[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 10\n\n[[score]]\nname = \"image\"\nkind = \"detector\"\nposition_cm = [0, 0, 0]\nsize_cm = [20, 20]\npixel_pitch_cm = 2\nroi_size_cm = 2\n",
+    )
+    .unwrap();
+    let o = dosemill(&["run", deck.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    if !h5py_available() {
+        return;
+    }
+    let script = r#"
+import sys, h5py, numpy as np
+with h5py.File(sys.argv[1], "r") as f:
+    g = f["source_field_bias"]
+    b, w = g["keep_probability"][()], g["start_weight"][()]
+    assert g.attrs["toward"] == "image", g.attrs["toward"]
+    assert g.attrs["length_cm"] == 2 and g.attrs["floor"] == 0.2
+    z = g.attrs["acceptance"]
+    assert b.shape == w.shape == (16, 24), b.shape
+    assert np.all(np.abs(b * w - z) <= 1e-12), np.max(np.abs(b * w - z))
+    assert abs(b.max() - 1) < 1e-12 and b.min() >= 0.2 - 1e-12 and b.min() < 0.5, (b.min(), b.max())
+    assert 0.2 < z < 1, z
+print("ok")
+"#;
+    let c = Command::new("python3").args(["-c", script, out.join("fb.h5").to_str().unwrap()]).output().unwrap();
+    assert!(c.status.success(), "h5py check failed:\n{}{}", String::from_utf8_lossy(&c.stdout), String::from_utf8_lossy(&c.stderr));
+}

@@ -389,8 +389,9 @@ impl FieldBias {
         let cells = [n(width_cm), n(height_cm)];
         let cell_cm = [width_cm / cells[0] as f64, height_cm / cells[1] as f64];
         let half_cm = [0.5 * width_cm, 0.5 * height_cm];
-        let src = Source::new(*emission, EnergySpectrum::Mono(1.0));
-        let (u, v) = (src.frame_u, src.frame_v);
+        let (u, v) = match *emission {
+            Emission::Parallel { direction, .. } | Emission::Point { direction, .. } | Emission::Pencil { direction, .. } => frame(direction),
+        };
         let mut prob = Vec::with_capacity(cells[0] * cells[1]);
         let mut imp = Vec::with_capacity(cells[0] * cells[1]);
         for iv in 0..cells[1] {
@@ -517,16 +518,7 @@ impl Source {
             Emission::Pencil { origin_cm, direction } => (origin_cm, direction, 1.0),
             Emission::Parallel { origin_cm, direction, field } => loop {
                 let (a, b) = field.sample(rng);
-                let weight = match &self.field_bias {
-                    None => 1.0,
-                    Some(fb) => {
-                        let c = fb.cell(a, b);
-                        if rng.uniform() >= fb.keep[c] {
-                            continue;
-                        }
-                        fb.weight[c]
-                    }
-                };
+                let Some(weight) = self.field_weight(a, b, rng) else { continue };
                 return (origin_cm + u * a + v * b, direction, weight);
             },
             Emission::Point { origin_cm, direction: w, field, field_distance_cm, focal_spot_cm: [fw, fh] } => {
@@ -547,16 +539,7 @@ impl Source {
                     let t = field_distance_cm / c;
                     let (fa, fb_) = (sa + a * t, sb + b * t);
                     if field.contains(fa, fb_) {
-                        let weight = match &self.field_bias {
-                            None => 1.0,
-                            Some(fb) => {
-                                let k = fb.cell(fa, fb_);
-                                if rng.uniform() >= fb.keep[k] {
-                                    continue;
-                                }
-                                fb.weight[k]
-                            }
-                        };
+                        let Some(weight) = self.field_weight(fa, fb_, rng) else { continue };
                         let d = u * a + v * b + w * c;
                         let start = if spot { origin_cm + u * sa + v * sb } else { origin_cm };
                         return (start, d, weight);
@@ -564,6 +547,15 @@ impl Source {
                 }
             }
         }
+    }
+
+    /// The field bias's verdict on a ray through field point (a, b): its start weight when kept
+    /// (always 1 without a bias), `None` when it is to be drawn again.
+    #[inline]
+    fn field_weight(&self, a: f64, b: f64, rng: &mut Stream) -> Option<f64> {
+        let Some(fb) = &self.field_bias else { return Some(1.0) };
+        let c = fb.cell(a, b);
+        (rng.uniform() < fb.keep[c]).then(|| fb.weight[c])
     }
 
     /// The source point: the focal spot's centre, or the centre of a beam's start plane (cm).

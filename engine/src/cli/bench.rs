@@ -29,6 +29,10 @@ pub struct Args {
     /// P2 only: side of the central region of interest (cm; the reference figure uses 5).
     #[arg(long, default_value_t = crate::score::detector::p2::REFERENCE_ROI_CM)]
     pub roi_cm: f64,
+    /// P2 only: repeat the four runs with seeds seed, seed+1, … and report each gain's median and
+    /// spread (timings on a shared machine vary from run to run).
+    #[arg(long, default_value_t = 1)]
+    pub repeat: u32,
 }
 
 /// Peak resident memory of this process so far (bytes), from /proc/self/status (Linux).
@@ -63,25 +67,49 @@ pub fn run_bench(args: Args) -> anyhow::Result<i32> {
         return Ok(0);
     } else if args.problem == "p2" {
         // A forced-detection history costs several analog ones: run it on a tenth of the histories.
-        use crate::score::detector::p2::{efficiency_gain, estimate, Estimator};
+        use crate::score::detector::p2::{estimate, Estimator};
         let forced = (args.histories / 10).max(1000);
         if !(args.roi_cm > 0.0 && args.roi_cm <= 40.0) {
             anyhow::bail!("--roi-cm {}: the ROI side must be above 0 and at most the 40 cm face", args.roi_cm);
         }
-        let (a, f, gain) = efficiency_gain(0.2, args.roi_cm, Estimator::Forced, args.histories, forced, threads);
-        let b = estimate(0.2, args.roi_cm, Estimator::ForcedEnergyBias, forced, threads);
-        let c = estimate(0.2, args.roi_cm, Estimator::ForcedBothBiases, forced, threads);
+        if args.repeat == 0 {
+            anyhow::bail!("--repeat 0: give at least one repeat");
+        }
         println!("P2: 80 kV tube, 30 × 30 cm field at 100 cm, 20 cm water, 40 × 40 cm detector at 2 mm pitch, central ROI {} × {} cm", args.roi_cm, args.roi_cm);
         println!("  threads               {threads}");
-        for (est, e) in [(Estimator::Analog, &a), (Estimator::Forced, &f), (Estimator::ForcedEnergyBias, &b), (Estimator::ForcedBothBiases, &c)] {
-            println!(
-                "  {:<21} {} histories, ROI scatter {:.4e} ± {:.2e} keV/cm², {:.2} s, efficiency 1/(σ²T) {:.3e} /s",
-                est.label(), e.histories, e.roi_scatter, e.roi_scatter_sigma, e.wall_time_s, e.efficiency_per_s
-            );
+        let kinds = [Estimator::Forced, Estimator::ForcedEnergyBias, Estimator::ForcedBothBiases];
+        let mut gains: Vec<[f64; 3]> = Vec::new();
+        for r in 0..args.repeat {
+            let seed = args.seed + r as u64;
+            if args.repeat > 1 {
+                println!("  repeat {} (seed {seed})", r + 1);
+            }
+            // The analog run first, then each forced variant on the same seed.
+            let a = estimate(0.2, args.roi_cm, Estimator::Analog, args.histories, seed, threads);
+            let runs: Vec<_> = kinds.iter().map(|&k| estimate(0.2, args.roi_cm, k, forced, seed, threads)).collect();
+            for (est, e) in std::iter::once((Estimator::Analog, &a)).chain(kinds.iter().copied().zip(runs.iter())) {
+                println!(
+                    "  {:<21} {} histories, ROI scatter {:.4e} ± {:.2e} keV/cm², {:.2} s, efficiency 1/(σ²T) {:.3e} /s",
+                    est.label(), e.histories, e.roi_scatter, e.roi_scatter_sigma, e.wall_time_s, e.efficiency_per_s
+                );
+            }
+            let g = [0, 1, 2].map(|i| runs[i].efficiency_per_s / a.efficiency_per_s);
+            for (k, gi) in kinds.iter().zip(g) {
+                println!("  efficiency gain       {gi:.2} ({} / analog)", k.label());
+            }
+            gains.push(g);
         }
-        println!("  efficiency gain       {gain:.2} (forced / analog)");
-        println!("  efficiency gain       {:.2} (forced + energy bias / analog)", b.efficiency_per_s / a.efficiency_per_s);
-        println!("  efficiency gain       {:.2} (forced + both biases / analog)", c.efficiency_per_s / a.efficiency_per_s);
+        if args.repeat > 1 {
+            for (i, k) in kinds.iter().enumerate() {
+                let mut v: Vec<f64> = gains.iter().map(|g| g[i]).collect();
+                v.sort_by(f64::total_cmp);
+                let n = v.len() as f64;
+                let mean = v.iter().sum::<f64>() / n;
+                let sd = (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+                let med = if v.len() % 2 == 1 { v[v.len() / 2] } else { 0.5 * (v[v.len() / 2 - 1] + v[v.len() / 2]) };
+                println!("  gain over {} repeats  median {med:.2}, mean {mean:.2} ± {sd:.2} (sd), range {:.2}–{:.2} ({} / analog)", args.repeat, v[0], v[v.len() - 1], k.label());
+            }
+        }
         return Ok(0);
     } else if args.problem != "p1" {
         anyhow::bail!("unknown problem `{}`: choose p1, p2 or p3", args.problem);

@@ -112,9 +112,9 @@ pub struct Estimate {
 }
 
 /// Runs P2 with one estimator.
-pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, histories: u64, threads: usize) -> Estimate {
+pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, histories: u64, seed: u64, threads: usize) -> Estimate {
     let p = problem(pixel_pitch_cm, roi_cm, estimator);
-    let r = run(&p, &RunSettings { histories, seed: 2, chunk_histories: 2_000, threads, progress: false });
+    let r = run(&p, &RunSettings { histories, seed, chunk_histories: 2_000, threads, progress: false });
     let Scorer::Detector(d) = &r.scorers[0] else { unreachable!("P2 has one detector") };
     let d: &DetectorScorer = d;
     let s = d.summary(r.histories);
@@ -132,9 +132,9 @@ pub fn estimate(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, historie
 
 /// Analog and forced-detection estimates of P2 and the efficiency gain of the latter
 /// (`estimator`: any but [`Estimator::Analog`]).
-pub fn efficiency_gain(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, analog_histories: u64, forced_histories: u64, threads: usize) -> (Estimate, Estimate, f64) {
-    let a = estimate(pixel_pitch_cm, roi_cm, Estimator::Analog, analog_histories, threads);
-    let f = estimate(pixel_pitch_cm, roi_cm, estimator, forced_histories, threads);
+pub fn efficiency_gain(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, analog_histories: u64, forced_histories: u64, seed: u64, threads: usize) -> (Estimate, Estimate, f64) {
+    let a = estimate(pixel_pitch_cm, roi_cm, Estimator::Analog, analog_histories, seed, threads);
+    let f = estimate(pixel_pitch_cm, roi_cm, estimator, forced_histories, seed, threads);
     let gain = f.efficiency_per_s / a.efficiency_per_s;
     (a, f, gain)
 }

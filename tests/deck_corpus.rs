@@ -221,6 +221,7 @@ fn tube_filters_and_detector_are_resolved() {
         "Pb"
     );
     assert_eq!((det.primary_subpixels, det.primary_focal_points), (2, 4), "defaults");
+    assert_eq!(det.forced_detection_steer, 0.3, "the steered share of Compton directions");
     let deck::SourceShape::Point { focal_spot_cm, .. } = d.resolved.source.shape else {
         panic!("a point source")
     };

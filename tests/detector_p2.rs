@@ -8,7 +8,7 @@ use dosemill_engine::score::detector::p2;
 #[ignore]
 fn p2_forced_detection_efficiency_gain() {
     let pitch: f64 = std::env::var("DOSEMILL_P2_PITCH_CM").ok().and_then(|s| s.parse().ok()).unwrap_or(0.2);
-    for est in [p2::Estimator::Forced, p2::Estimator::ForcedEnergyBias, p2::Estimator::ForcedBothBiases] {
+    for est in [p2::Estimator::Forced, p2::Estimator::ForcedEnergyBias, p2::Estimator::ForcedBothBiases, p2::Estimator::ForcedSteered] {
         let (a, f, gain) = p2::efficiency_gain(pitch, p2::REFERENCE_ROI_CM, est, 1_000_000, 100_000, 2, 1);
         eprintln!("analog: {a:?}\n{}: {f:?}\ngain {gain:.1}", est.label());
         let z = (a.roi_scatter - f.roi_scatter) / (a.roi_scatter_sigma.powi(2) + f.roi_scatter_sigma.powi(2)).sqrt();

@@ -16,12 +16,14 @@ fn bench(c: &mut Criterion) {
     let (a, f, gain) = p2::efficiency_gain(pitch, p2::REFERENCE_ROI_CM, p2::Estimator::Forced, 200_000, 10_000, 2, 1);
     let b = p2::estimate(pitch, p2::REFERENCE_ROI_CM, p2::Estimator::ForcedEnergyBias, 10_000, 2, 1);
     let d = p2::estimate(pitch, p2::REFERENCE_ROI_CM, p2::Estimator::ForcedBothBiases, 10_000, 2, 1);
+    let e = p2::estimate(pitch, p2::REFERENCE_ROI_CM, p2::Estimator::ForcedSteered, 10_000, 2, 1);
     eprintln!(
-        "P2 ({pitch} cm pixels): analog ROI scatter {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); forced {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); gain {gain:.1}; SPR {:.2}; forced + energy bias {:.4e} ± {:.2e} in {:.2} s (gain {:.1}); forced + both biases {:.4e} ± {:.2e} in {:.2} s (gain {:.1})",
+        "P2 ({pitch} cm pixels): analog ROI scatter {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); forced {:.4e} ± {:.2e} in {:.2} s (eff {:.3e}/s); gain {gain:.1}; SPR {:.2}; forced + energy bias {:.4e} ± {:.2e} in {:.2} s (gain {:.1}); forced + both biases {:.4e} ± {:.2e} in {:.2} s (gain {:.1}); forced + biases + steer {:.4e} ± {:.2e} in {:.2} s (gain {:.1})",
         a.roi_scatter, a.roi_scatter_sigma, a.wall_time_s, a.efficiency_per_s, f.roi_scatter, f.roi_scatter_sigma, f.wall_time_s, f.efficiency_per_s, f.spr_roi, b.roi_scatter, b.roi_scatter_sigma, b.wall_time_s, b.efficiency_per_s / a.efficiency_per_s,
-        d.roi_scatter, d.roi_scatter_sigma, d.wall_time_s, d.efficiency_per_s / a.efficiency_per_s
+        d.roi_scatter, d.roi_scatter_sigma, d.wall_time_s, d.efficiency_per_s / a.efficiency_per_s,
+        e.roi_scatter, e.roi_scatter_sigma, e.wall_time_s, e.efficiency_per_s / a.efficiency_per_s
     );
-    for (est, name) in [(p2::Estimator::Analog, "analog"), (p2::Estimator::Forced, "forced"), (p2::Estimator::ForcedEnergyBias, "forced_energy_bias"), (p2::Estimator::ForcedBothBiases, "forced_both_biases")] {
+    for (est, name) in [(p2::Estimator::Analog, "analog"), (p2::Estimator::Forced, "forced"), (p2::Estimator::ForcedEnergyBias, "forced_energy_bias"), (p2::Estimator::ForcedBothBiases, "forced_both_biases"), (p2::Estimator::ForcedSteered, "forced_steered")] {
         let p = p2::problem(pitch, p2::REFERENCE_ROI_CM, est);
         let n = if est == p2::Estimator::Analog { 10_000 } else { 500 };
         c.bench_function(&format!("p2_{name}_{n}_histories"), |b| {

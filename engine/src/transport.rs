@@ -225,6 +225,8 @@ pub struct HistoryOutcome {
 
 struct Ctx<'a> {
     scorers: &'a mut [Scorer],
+    /// A detector steering Compton directions toward its face (forced detection), if any.
+    steer: Option<&'a crate::score::detector::DetectorSetup>,
     segments: bool,
     sites: bool,
     history: u64,
@@ -282,7 +284,11 @@ impl Problem {
         let (pos, dir, kev, weight) = self.source.sample_weighted(&mut rng);
         let segments = self.segments_wanted();
         let sites = self.interactions_wanted();
-        let mut ctx = Ctx { scorers, history, segments, sites, outcome: HistoryOutcome { incident_kev: kev * weight, ..Default::default() } };
+        let steer = self.scorers.iter().find_map(|s| match s {
+            Scorer::Detector(d) if d.setup.steers() => Some(&*d.setup),
+            _ => None,
+        });
+        let mut ctx = Ctx { scorers, steer, history, segments, sites, outcome: HistoryOutcome { incident_kev: kev * weight, ..Default::default() } };
         let mut stack = [Photon::new(pos, dir, kev, weight, Region::ESCAPED, false); STACK_DEPTH];
         let mut depth = 1usize;
         stack[0].region = enter_world(&self.geometry, pos, dir, &mut stack[0].pos);
@@ -515,11 +521,21 @@ impl Problem {
                 false
             }
             Interaction::Incoherent => {
-                let (ratio, cos_theta) = compton::sample(p.kev, c.element, self.options.bound_compton, rng);
+                let (ratio, dir) = match ctx.steer {
+                    None => {
+                        let (ratio, cos_theta) = compton::sample(p.kev, c.element, self.options.bound_compton, rng);
+                        (ratio, rotate(p.dir, cos_theta, rng.azimuth()))
+                    }
+                    Some(d) => {
+                        let (dir, ratio, factor) = d.steer_incoherent(p.pos, p.dir, p.kev, p.ln_kev, p.cached_material as usize, component, c.element, self.options.bound_compton, rng);
+                        p.weight *= factor;
+                        (ratio, dir)
+                    }
+                };
                 let scattered = p.kev * ratio;
                 ctx.deposit(p.region, p.pos, (p.kev - scattered) * p.weight);
                 p.set_energy(scattered);
-                p.dir = rotate(p.dir, cos_theta, rng.azimuth());
+                p.dir = dir;
                 p.incoherent = p.incoherent.saturating_add(1);
                 if p.kev < self.options.cutoff_kev {
                     ctx.count(counts::CUTOFF, p.weight);

@@ -57,7 +57,7 @@ pub fn run_bench(args: Args) -> anyhow::Result<i32> {
         let m = n.div_ceil(b);
         println!("P3: {n}³ voxel phantom ({:.3} cm), 80 kV tube, 20 × 20 cm field at 100 cm, analog dose with σ on a {m}³ grid, Woodcock tracking", 25.6 / n as f64);
         println!("  set-up                {build:.2} s (phantom, tables, spectrum)");
-        println!("  threads               {threads}");
+        println!("  threads                 {threads}");
         println!("  histories             {}", r.histories);
         println!("  wall time             {:.3} s", r.wall_time_s);
         println!("  histories/s           {:.3e} ({:.3e} per thread)", rate, rate / threads as f64);
@@ -76,9 +76,9 @@ pub fn run_bench(args: Args) -> anyhow::Result<i32> {
             anyhow::bail!("--repeat 0: give at least one repeat");
         }
         println!("P2: 80 kV tube, 30 × 30 cm field at 100 cm, 20 cm water, 40 × 40 cm detector at 2 mm pitch, central ROI {} × {} cm", args.roi_cm, args.roi_cm);
-        println!("  threads               {threads}");
-        let kinds = [Estimator::Forced, Estimator::ForcedEnergyBias, Estimator::ForcedBothBiases];
-        let mut gains: Vec<[f64; 3]> = Vec::new();
+        println!("  threads                 {threads}");
+        let kinds = [Estimator::Forced, Estimator::ForcedEnergyBias, Estimator::ForcedBothBiases, Estimator::ForcedSteered];
+        let mut gains: Vec<[f64; 4]> = Vec::new();
         for r in 0..args.repeat {
             let seed = args.seed + r as u64;
             if args.repeat > 1 {
@@ -89,13 +89,13 @@ pub fn run_bench(args: Args) -> anyhow::Result<i32> {
             let runs: Vec<_> = kinds.iter().map(|&k| estimate(0.2, args.roi_cm, k, forced, seed, threads)).collect();
             for (est, e) in std::iter::once((Estimator::Analog, &a)).chain(kinds.iter().copied().zip(runs.iter())) {
                 println!(
-                    "  {:<21} {} histories, ROI scatter {:.4e} ± {:.2e} keV/cm², {:.2} s, efficiency 1/(σ²T) {:.3e} /s",
+                    "  {:<23} {} histories, ROI scatter {:.4e} ± {:.2e} keV/cm², {:.2} s, efficiency 1/(σ²T) {:.3e} /s",
                     est.label(), e.histories, e.roi_scatter, e.roi_scatter_sigma, e.wall_time_s, e.efficiency_per_s
                 );
             }
-            let g = [0, 1, 2].map(|i| runs[i].efficiency_per_s / a.efficiency_per_s);
+            let g = [0, 1, 2, 3].map(|i| runs[i].efficiency_per_s / a.efficiency_per_s);
             for (k, gi) in kinds.iter().zip(g) {
-                println!("  efficiency gain       {gi:.2} ({} / analog)", k.label());
+                println!("  efficiency gain         {gi:.2} ({} / analog)", k.label());
             }
             gains.push(g);
         }
@@ -127,7 +127,7 @@ pub fn run_bench(args: Args) -> anyhow::Result<i32> {
     let r = run(&problem, &settings);
     let rate = r.histories as f64 / r.wall_time_s;
     println!("P1: 60 keV pencil beam, 20 cm water, full physics, depth dose in 1 mm bins");
-    println!("  threads               {threads}");
+    println!("  threads                 {threads}");
     println!("  histories             {}", r.histories);
     println!("  wall time             {:.3} s", r.wall_time_s);
     println!("  histories/s           {:.3e} ({:.3e} per thread)", rate, rate / threads as f64);

@@ -376,6 +376,9 @@ pub(crate) fn resolved_to_toml(r: &ResolvedDeck) -> String {
                 t["forced_detection_from"] = value(d.forced_detection_from.name());
                 t["forced_detection_roulette_below"] = value(d.forced_detection_roulette_below);
                 t["forced_detection_coherent_directions"] = value(d.forced_detection_coherent_directions);
+                if d.forced_detection_steer > 0.0 {
+                    t["forced_detection_steer"] = value(d.forced_detection_steer);
+                }
                 if d.primary_subpixels != crate::deck::DEFAULT_PRIMARY_SUBPIXELS {
                     t["primary_subpixels"] = value(d.primary_subpixels as i64);
                 }

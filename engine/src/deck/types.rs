@@ -543,6 +543,9 @@ pub struct Detector {
     /// Also draw a coherent-scatter direction from its own angular distribution at each site
     /// (combined with the solid-angle points by the balance heuristic).
     pub forced_detection_coherent_directions: bool,
+    /// Fraction of Compton scatterings whose direction is drawn toward the face, the weight
+    /// corrected (0 = off, at most [`MAX_FD_STEER`]; needs forced detection).
+    pub forced_detection_steer: f64,
     /// Points per pixel axis of the noiseless primary image (1–32; pixels the field edge
     /// crosses are refined further).
     pub primary_subpixels: usize,
@@ -554,6 +557,8 @@ pub struct Detector {
 /// Default transmission level below which forced-detection sites are played by Russian
 /// roulette (chosen on the P2 reference problem, README).
 pub const DEFAULT_FD_ROULETTE_BELOW: f64 = 0.5;
+/// Largest steered fraction of Compton directions (the weight factor is at most 1/(1 − s)).
+pub const MAX_FD_STEER: f64 = 0.9;
 /// Default points per pixel axis of the noiseless primary image.
 pub const DEFAULT_PRIMARY_SUBPIXELS: usize = 2;
 /// Default points per focal-spot axis of the noiseless primary image.

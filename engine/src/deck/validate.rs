@@ -47,6 +47,8 @@ pub(crate) struct Walk<'f> {
     energy_bias_loc: Option<Loc>,
     /// Where `[source.field_bias]` (its `toward`) was given.
     field_bias_loc: Option<Loc>,
+    /// Where each detector's `forced_detection_steer` above 0 was given, with the score's name.
+    steer_locs: Vec<(Loc, String)>,
 }
 
 fn is_identifier(s: &str) -> bool {
@@ -80,6 +82,7 @@ impl<'f> Walk<'f> {
             main_deck,
             energy_bias_loc: None,
             field_bias_loc: None,
+            steer_locs: Vec::new(),
         }
     }
 
@@ -245,6 +248,17 @@ impl<'f> Walk<'f> {
             }
             if let SourceEnergy::Monoenergetic { .. } = source.energy {
                 self.err(loc, "source.energy_bias", "a single-energy source has no energies to bias", Some("remove `[source.energy_bias]`, or give a spectrum (`spectrum_file` or `[source.tube]`)".into()));
+            }
+        }
+        if let [(_, first), rest @ ..] = &self.steer_locs[..] {
+            let first = first.clone();
+            for (loc, key) in rest.to_vec() {
+                self.err(
+                    loc,
+                    &key,
+                    format!("only one detector can steer Compton directions; `{first}` does already"),
+                    Some("remove `forced_detection_steer` from all detectors but one".into()),
+                );
             }
         }
         if let (Some(b), Some(loc)) = (&source.field_bias, self.field_bias_loc) {
@@ -1577,6 +1591,7 @@ impl<'f> Walk<'f> {
                 "forced_detection_from",
                 "forced_detection_roulette_below",
                 "forced_detection_coherent_directions",
+                "forced_detection_steer",
                 "primary_subpixels",
                 "primary_focal_points",
             ],
@@ -1801,6 +1816,27 @@ impl<'f> Walk<'f> {
             None => Some(DEFAULT_FD_ROULETTE_BELOW),
         };
         let coherent_directions = t.bool_or(cx, "forced_detection_coherent_directions", true);
+        let steer = match t.get("forced_detection_steer") {
+            Some(n) => match t.num_opt(cx, "forced_detection_steer", Range::closed(0.0, MAX_FD_STEER, "")) {
+                Some(s) if s > 0.0 && !forced => {
+                    cx.err(
+                        n.loc,
+                        &t.kp("forced_detection_steer"),
+                        "steering Compton directions toward the face needs forced detection (analog crossings would not gain from it)".to_string(),
+                        Some("add `forced_detection = true`, or remove `forced_detection_steer`".to_string()),
+                    );
+                    None
+                }
+                Some(s) => {
+                    if s > 0.0 {
+                        self.steer_locs.push((n.loc, t.kp("forced_detection_steer")));
+                    }
+                    Some(s)
+                }
+                None => None,
+            },
+            None => Some(0.0),
+        };
         let primary_subpixels = match t.get("primary_subpixels") {
             Some(n) => uint_in(cx, n, &t.kp("primary_subpixels"), 1, 32),
             None => Some(DEFAULT_PRIMARY_SUBPIXELS as u64),
@@ -1930,6 +1966,7 @@ impl<'f> Walk<'f> {
             forced_detection_from: fd_from,
             forced_detection_roulette_below: roulette_below?,
             forced_detection_coherent_directions: coherent_directions,
+            forced_detection_steer: steer?,
             primary_subpixels: primary_subpixels? as usize,
             primary_focal_points: primary_focal_points? as usize,
         })

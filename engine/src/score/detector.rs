@@ -108,6 +108,7 @@
 pub mod p2;
 mod scatter_table;
 pub mod sphrect;
+mod steer;
 
 use super::grid::GridModel;
 use super::{InteractionSite, PhotonView, Tally};
@@ -329,6 +330,10 @@ pub struct DetectorSpec {
     /// Next-event points from one point of every flight's whole ray (expected collisions)
     /// instead of from the collisions the transport samples.
     pub fd_along_flights: bool,
+    /// Fraction s of Compton scatterings whose direction is drawn uniformly in solid angle over
+    /// the face instead of from the physical density, the weight corrected by p/q (`steer.rs`);
+    /// 0 turns steering off.
+    pub fd_steer: f64,
     /// Sub-pixel points per axis of the deterministic primary (≥ 1).
     pub primary_subpixels: usize,
     /// Focal-spot points per axis of the deterministic primary when the source has a focal
@@ -359,6 +364,7 @@ impl DetectorSpec {
             fd_coherent_sampling: true,
             fd_roulette_below: Self::DEFAULT_FD_ROULETTE_BELOW,
             fd_along_flights: true,
+            fd_steer: 0.0,
             primary_subpixels: crate::deck::DEFAULT_PRIMARY_SUBPIXELS,
             primary_focal_points: crate::deck::DEFAULT_PRIMARY_FOCAL_POINTS,
         }
@@ -1530,6 +1536,7 @@ pub fn from_deck(
     }
     spec.fd_face_points = det.forced_detection_face_points;
     spec.fd_coherent_sampling = det.forced_detection_coherent_directions;
+    spec.fd_steer = det.forced_detection_steer;
     spec.fd_roulette_below = det.forced_detection_roulette_below;
     spec.fd_along_flights = det.forced_detection_from == deck::ForcedDetectionFrom::Flights;
     spec.primary_subpixels = det.primary_subpixels;

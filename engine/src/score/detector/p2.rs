@@ -24,7 +24,13 @@ pub enum Estimator {
     /// Forced detection with the energy bias and the start rays biased toward the ROI
     /// (`[source.field_bias]`, default length and floor).
     ForcedBothBiases,
+    /// Both biases and Compton directions steered toward the face
+    /// (`forced_detection_steer = 0.3`, [`STEER`]).
+    ForcedSteered,
 }
+
+/// The steered share of Compton directions of [`Estimator::ForcedSteered`] (chosen on P2, README).
+pub const STEER: f64 = 0.3;
 
 impl Estimator {
     /// The label the benchmarks print.
@@ -34,6 +40,7 @@ impl Estimator {
             Estimator::Forced => "forced detection",
             Estimator::ForcedEnergyBias => "forced + energy bias",
             Estimator::ForcedBothBiases => "forced + both biases",
+            Estimator::ForcedSteered => "forced + biases + steer",
         }
     }
 }
@@ -44,9 +51,10 @@ pub fn deck(pixel_pitch_cm: f64, roi_cm: f64, estimator: Estimator, histories: u
     let forced_detection = estimator != Estimator::Analog;
     let energy_bias = match estimator {
         Estimator::ForcedEnergyBias => "\n[source.energy_bias]\ntoward = \"image\"\n",
-        Estimator::ForcedBothBiases => "\n[source.energy_bias]\ntoward = \"image\"\n\n[source.field_bias]\ntoward = \"image\"\n",
+        Estimator::ForcedBothBiases | Estimator::ForcedSteered => "\n[source.energy_bias]\ntoward = \"image\"\n\n[source.field_bias]\ntoward = \"image\"\n",
         _ => "",
     };
+    let steer = if estimator == Estimator::ForcedSteered { format!("forced_detection_steer = {STEER}\n") } else { String::new() };
     format!(
         r#"# P2: imaging scatter reference problem (demo scenario).
 [run]
@@ -83,7 +91,7 @@ pixel_pitch_cm = {pixel_pitch_cm}
 roi_size_cm = {roi_cm}
 response = "energy_fluence"
 forced_detection = {forced_detection}
-"#
+{steer}"#
     )
 }
 

@@ -29,8 +29,8 @@ pub struct Args {
     /// P2 only: side of the central region of interest (cm; the reference figure uses 5).
     #[arg(long, default_value_t = crate::score::detector::p2::REFERENCE_ROI_CM)]
     pub roi_cm: f64,
-    /// P2 only: repeat the four runs with seeds seed, seed+1, … and report each gain's median and
-    /// spread (timings on a shared machine vary from run to run).
+    /// P2 only: repeat the analog and forced-detection runs with seeds seed, seed+1, … and report
+    /// each gain's median and spread (timings on a shared machine vary from run to run).
     #[arg(long, default_value_t = 1)]
     pub repeat: u32,
 }

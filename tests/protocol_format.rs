@@ -105,3 +105,26 @@ fn binary_exits_2_on_a_bad_protocol() {
     assert!(err.contains("bad.toml:4:1: exam[0].kvp"), "{err}");
     assert!(!dir.join("out").exists(), "nothing is written for a bad protocol");
 }
+
+/// The two file kinds mixed up: a run deck given to `protocol` and a protocol file given to
+/// `check` each get one error that names the other command, at the first table's position.
+#[test]
+fn deck_and_protocol_mixed_up_get_one_pointed_error() {
+    let deck = "# a deck\n[run]\nhistories = 10\n\n[source]\nenergy_kev = 60\n";
+    let e = parse_toml(deck, "d.toml").unwrap_err();
+    assert_eq!((e.line, e.column, e.key.as_str()), (2, 1, "run"), "{e}");
+    assert!(e.message.contains("run deck, not a protocol file") && e.message.contains("dosemill run d.toml"), "{e}");
+    // A protocol with a stray `run` table is still a protocol: the parser's unknown-field error.
+    let e = parse_toml(&format!("[run]\nx = 1\n{GOOD}"), "p.toml").unwrap_err();
+    assert!(!e.message.contains("run deck"), "{e}");
+
+    let o = Command::new(env!("CARGO_BIN_EXE_dosemill"))
+        .arg("check")
+        .arg(root().join("runs/protocol_demo.toml"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("protocol_demo.toml:3:2: this is a protocol file"), "{err}");
+    assert!(err.contains("dosemill protocol") && err.lines().count() <= 2, "one error only: {err}");
+}

@@ -150,6 +150,24 @@ fn check_prints_a_resolved_deck() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
 }
 
+/// Every example deck under runs/ loads and validates (`dosemill check` exits 0); protocol
+/// files there are for `dosemill protocol` and are checked in tests/protocol_format.rs.
+#[test]
+fn every_example_deck_passes_check() {
+    let mut decks: Vec<PathBuf> = std::fs::read_dir(root().join("runs"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().and_then(|e| e.to_str()) == Some("toml"))
+        .filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with("protocol"))
+        .collect();
+    decks.sort();
+    assert!(decks.len() >= 5, "example decks found: {decks:?}");
+    for d in &decks {
+        let o = dosemill(&["check", d.to_str().unwrap()]);
+        assert!(o.status.success(), "{}: {}", d.display(), String::from_utf8_lossy(&o.stderr));
+    }
+}
+
 /// `stop_at_uncertainty`: the run stops after the first wave of 16 chunks at which the peak bin
 /// of the named score reaches the target, the same point with 1 and 2 threads (bit-identical
 /// files), records why it stopped, and its uncertainty is indeed at or below the target.

@@ -177,6 +177,18 @@ impl<'f> Walk<'f> {
     // ---------------------------------------------------------------- top level
 
     pub fn deck(&mut self, root: &Node) -> Option<ResolvedDeck> {
+        // A protocol file (`dosemill protocol`) given where a deck is expected: one error that
+        // says so, instead of a missing key for every deck table and an unknown one for each
+        // protocol table.
+        let deck_keys = ["run", "source", "geometry", "score"];
+        if let Some(p) = ["protocol", "exam"].iter().find_map(|k| root.get(k)) {
+            if deck_keys.iter().all(|k| root.get(k).is_none()) {
+                let loc = p.key_or_value();
+                let file = self.cx.files.files.get(loc.file).map(|f| f.path.display().to_string()).unwrap_or_default();
+                self.cx.err(loc, "", "this is a protocol file (`[protocol]`, `[[exam]]`), not a deck", Some(format!("evaluate it with `dosemill protocol {file}`")));
+                return None;
+            }
+        }
         let top = Tbl::new(
             &mut self.cx,
             root,

@@ -450,8 +450,45 @@ fn resolve(c: &Checker, r: RawExam, default_tol: f64) -> Result<Exam, ProtocolEr
     })
 }
 
+/// A run deck (`[run]`, `[source]`, `[geometry]`, `[[score]]`) given where a protocol file is
+/// expected: one error that says so and names the command for decks, instead of serde's
+/// "unknown field `run`".
+fn deck_given_as_protocol(text: &str, file: &str) -> Result<(), ProtocolError> {
+    #[derive(Deserialize)]
+    struct Probe {
+        run: Option<toml::Spanned<toml::Value>>,
+        source: Option<toml::Spanned<toml::Value>>,
+        geometry: Option<toml::Spanned<toml::Value>>,
+        score: Option<toml::Spanned<toml::Value>>,
+        protocol: Option<toml::Value>,
+        exam: Option<toml::Value>,
+    }
+    let Ok(p) = toml::from_str::<Probe>(text) else { return Ok(()) };
+    if p.protocol.is_some() || p.exam.is_some() {
+        return Ok(());
+    }
+    let first = [("run", &p.run), ("source", &p.source), ("geometry", &p.geometry), ("score", &p.score)]
+        .into_iter()
+        .filter_map(|(k, v)| v.as_ref().map(|v| (k, v.span().start)))
+        .min_by_key(|&(_, at)| at);
+    match first {
+        None => Ok(()),
+        Some((key, at)) => {
+            let (line, column) = line_col(text, at);
+            Err(ProtocolError {
+                file: file.into(),
+                line,
+                column,
+                key: key.into(),
+                message: format!("this is a run deck, not a protocol file (no `[protocol]` or `[[exam]]`); run it with `dosemill run {file}`"),
+            })
+        }
+    }
+}
+
 /// Parses protocol TOML text (`file` names it in errors).
 pub fn parse_toml(text: &str, file: &str) -> Result<Protocol, ProtocolError> {
+    deck_given_as_protocol(text, file)?;
     let parsed: FileToml = toml::from_str(text).map_err(|e| {
         let (line, column) = e.span().map_or((0, 0), |s| line_col(text, s.start));
         ProtocolError { file: file.to_string(), line, column, key: "toml".into(), message: e.message().to_string() }

@@ -251,7 +251,16 @@ fn quality_trends() {
     assert!(r.hvl1_mm_al < base.hvl1_mm_al && r.air_kerma_ugy_per_mas_1m < base.air_kerma_ugy_per_mas_1m);
     let up = q(&Tube::new(100.0, Anode::W).with_filter("Al", 1.5));
     assert!(up.hvl1_mm_al > base.hvl1_mm_al && up.air_kerma_ugy_per_mas_1m > base.air_kerma_ugy_per_mas_1m);
-    println!("80 kV: {base:?}\n+0.1 mm Cu: {harder:?}\n10 % ripple: {r:?}\n100 kV: {up:?}");
+    // Anode self-filtration (the physics of the heel effect): a steeper anode (smaller angle)
+    // lengthens the take-off path through tungsten, which hardens the beam and lowers its output.
+    let mut steep = Tube::new(80.0, Anode::W).with_filter("Al", 1.5);
+    steep.anode_angle_deg = 8.0;
+    let mut flat = steep.clone();
+    flat.anode_angle_deg = 20.0;
+    let (steep, flat) = (q(&steep), q(&flat));
+    assert!(steep.hvl1_mm_al > base.hvl1_mm_al && base.hvl1_mm_al > flat.hvl1_mm_al, "HVL with angle 8°, 12°, 20°");
+    assert!(steep.air_kerma_ugy_per_mas_1m < base.air_kerma_ugy_per_mas_1m && base.air_kerma_ugy_per_mas_1m < flat.air_kerma_ugy_per_mas_1m);
+    println!("80 kV: {base:?}\n+0.1 mm Cu: {harder:?}\n10 % ripple: {r:?}\n100 kV: {up:?}\n8° anode: {steep:?}\n20° anode: {flat:?}");
 }
 
 // Inverse square law and the sampling table: weights are the fluence, lines have zero width.

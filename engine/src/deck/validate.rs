@@ -176,6 +176,22 @@ impl<'f> Walk<'f> {
 
     // ---------------------------------------------------------------- top level
 
+    /// `[source.<what>_bias]`'s `toward` must name a detector score of the deck.
+    fn check_bias_target(&mut self, loc: Loc, scores: &[Score], toward: &str, what: &str) {
+        let detectors: Vec<&str> = scores.iter().filter(|s| matches!(s.kind, ScoreKind::Detector(_))).map(|s| s.name.as_str()).collect();
+        if detectors.contains(&toward) {
+            return;
+        }
+        let hint = nearest(toward, &detectors).map(|s| format!("did you mean `{s}`?")).or_else(|| {
+            Some(if detectors.is_empty() {
+                format!("the {what} bias needs a `[[score]]` with `kind = \"detector\"`; remove `[source.{what}_bias]` or add one")
+            } else {
+                format!("detector scores in this deck: {}", detectors.join(", "))
+            })
+        });
+        self.err(loc, &format!("source.{what}_bias.toward"), format!("no detector score named `{toward}`"), hint);
+    }
+
     pub fn deck(&mut self, root: &Node) -> Option<ResolvedDeck> {
         // A protocol file (`dosemill protocol`) given where a deck is expected: one error that
         // says so, instead of a missing key for every deck table and an unknown one for each
@@ -247,17 +263,7 @@ impl<'f> Walk<'f> {
             }
         }
         if let (Some(b), Some(loc)) = (&source.energy_bias, self.energy_bias_loc) {
-            let detectors: Vec<&str> = scores.iter().filter(|s| matches!(s.kind, ScoreKind::Detector(_))).map(|s| s.name.as_str()).collect();
-            if !detectors.contains(&b.toward.as_str()) {
-                let hint = nearest(&b.toward, &detectors).map(|s| format!("did you mean `{s}`?")).or_else(|| {
-                    Some(if detectors.is_empty() {
-                        "the energy bias needs a `[[score]]` with `kind = \"detector\"`; remove `[source.energy_bias]` or add one".to_string()
-                    } else {
-                        format!("detector scores in this deck: {}", detectors.join(", "))
-                    })
-                });
-                self.err(loc, "source.energy_bias.toward", format!("no detector score named `{}`", b.toward), hint);
-            }
+            self.check_bias_target(loc, &scores, &b.toward, "energy");
             if let SourceEnergy::Monoenergetic { .. } = source.energy {
                 self.err(loc, "source.energy_bias", "a single-energy source has no energies to bias", Some("remove `[source.energy_bias]`, or give a spectrum (`spectrum_file` or `[source.tube]`)".into()));
             }
@@ -274,17 +280,7 @@ impl<'f> Walk<'f> {
             }
         }
         if let (Some(b), Some(loc)) = (&source.field_bias, self.field_bias_loc) {
-            let detectors: Vec<&str> = scores.iter().filter(|s| matches!(s.kind, ScoreKind::Detector(_))).map(|s| s.name.as_str()).collect();
-            if !detectors.contains(&b.toward.as_str()) {
-                let hint = nearest(&b.toward, &detectors).map(|s| format!("did you mean `{s}`?")).or_else(|| {
-                    Some(if detectors.is_empty() {
-                        "the field bias needs a `[[score]]` with `kind = \"detector\"`; remove `[source.field_bias]` or add one".to_string()
-                    } else {
-                        format!("detector scores in this deck: {}", detectors.join(", "))
-                    })
-                });
-                self.err(loc, "source.field_bias.toward", format!("no detector score named `{}`", b.toward), hint);
-            }
+            self.check_bias_target(loc, &scores, &b.toward, "field");
             let refused = match &source.shape {
                 SourceShape::Pencil { .. } => Some(("a pencil beam has no field to bias", "remove `[source.field_bias]`, or use `kind = \"parallel\"` or `\"point\"` with a rectangular field")),
                 SourceShape::Parallel { field: Field::Circle { .. }, .. } | SourceShape::Point { field: Field::Circle { .. }, .. } => {

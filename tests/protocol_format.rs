@@ -128,3 +128,51 @@ fn deck_and_protocol_mixed_up_get_one_pointed_error() {
     assert!(err.contains("protocol_demo.toml:3:2: this is a protocol file"), "{err}");
     assert!(err.contains("dosemill protocol") && err.lines().count() <= 2, "one error only: {err}");
 }
+
+/// `anode_angle_deg` and `ripple_percent` of an exam: defaults from the tube model (12°, 0 %),
+/// read from TOML and CSV alike, range-checked with the key named, passed to the tube of the
+/// exam (its output and HVL) and to the detector run's deck. Direction of the effect: anode
+/// self-filtration (a steeper anode hardens the beam and lowers the output) and ripple (a
+/// rippled waveform softens the beam and lowers the output), as in tests/spectrum_physics.rs.
+#[test]
+fn anode_angle_and_ripple_reach_the_tube() {
+    use dosemill_engine::protocol::{imaging::detector_deck, tube_of};
+    use dosemill_engine::spectrum::{compute_spectrum, BeamQuality, SpectrumOptions};
+    let base = parse_toml(GOOD, "p.toml").unwrap().exams.remove(0);
+    assert_eq!((base.anode_angle_deg, base.ripple_percent), (12.0, 0.0));
+    let with = |extra: &str| GOOD.replace("kvp = 80", &format!("kvp = 80\n{extra}"));
+    let steep = parse_toml(&with("anode_angle_deg = 8"), "p.toml").unwrap().exams.remove(0);
+    let rippled = parse_toml(&with("ripple_percent = 10"), "p.toml").unwrap().exams.remove(0);
+    assert_eq!((steep.anode_angle_deg, rippled.ripple_percent), (8.0, 10.0));
+    let q = |e: &dosemill_engine::protocol::format::Exam| {
+        let t = tube_of(e);
+        BeamQuality::of(&compute_spectrum(&t, &SpectrumOptions::default()).unwrap()).unwrap()
+    };
+    let (qb, qs, qr) = (q(&base), q(&steep), q(&rippled));
+    assert!(qs.hvl1_mm_al > qb.hvl1_mm_al && qs.air_kerma_ugy_per_mas_1m < qb.air_kerma_ugy_per_mas_1m, "{qs:?} vs {qb:?}");
+    assert!(qr.hvl1_mm_al < qb.hvl1_mm_al && qr.air_kerma_ugy_per_mas_1m < qb.air_kerma_ugy_per_mas_1m, "{qr:?} vs {qb:?}");
+
+    // CSV: the same exam with the two columns.
+    let head = "name,kvp,anode_angle_deg,ripple_percent,mas,focus_skin_cm,field_width_cm,field_height_cm,patient_thickness_cm\n";
+    let c = parse_csv(&format!("{head}a,80,8,10,10,100,20,20,15\n"), "p.csv").unwrap().exams.remove(0);
+    assert_eq!((c.anode_angle_deg, c.ripple_percent), (8.0, 10.0));
+    let e = parse_csv(&format!("{head}a,80,60,0,10,100,20,20,15\n"), "p.csv").unwrap_err();
+    assert_eq!(e.key, "anode_angle_deg", "{e}");
+
+    // Out of range: the exam's line and the key, with the range.
+    let e = parse_toml(&with("anode_angle_deg = 2"), "p.toml").unwrap_err().to_string();
+    assert!(e.starts_with("p.toml:4:1: exam[0].anode_angle_deg:") && e.contains("3–45"), "{e}");
+    let e = parse_toml(&with("ripple_percent = -1"), "p.toml").unwrap_err().to_string();
+    assert!(e.contains("exam[0].ripple_percent") && e.contains("0–50"), "{e}");
+
+    // The detector run's deck carries both to its `[source.tube]`.
+    let det = with("anode_angle_deg = 8\nripple_percent = 10").replace("focus_skin_cm = 100", "focus_skin_cm = 100\ndetector = { material = \"csi\", thickness_mm = 0.6 }");
+    let ex = parse_toml(&det, "p.toml").unwrap().exams.remove(0);
+    let deck = detector_deck(&ex, 10_000, 1).unwrap();
+    let loaded = dosemill_engine::deck::load_str(&deck, Path::new("det.toml")).unwrap_or_else(|e| panic!("{e:?}\n{deck}"));
+    let tube = match &loaded.resolved.source.energy {
+        dosemill_engine::deck::SourceEnergy::Tube(t) => t.clone(),
+        other => panic!("not a tube source: {other:?}"),
+    };
+    assert_eq!((tube.anode_angle_deg, tube.ripple_percent), (8.0, 10.0));
+}

@@ -188,11 +188,11 @@ pub struct Tube {
     pub kvp: f64,
     /// Anode (target) element.
     pub anode: Anode,
-    /// Anode angle (degrees), 1–45.
+    /// Anode angle (degrees), 3–45 (`spectrum::ANODE_ANGLE_RANGE_DEG`).
     pub anode_angle_deg: f64,
     /// Filters in beam order.
     pub filters: Vec<Filter>,
-    /// Voltage ripple (% of kVp), 0–100; 0 is constant potential.
+    /// Voltage ripple (% of kVp), 0–50 (`spectrum::RIPPLE_RANGE_PERCENT`); 0 is constant potential.
     pub ripple_percent: f64,
 }
 

@@ -746,7 +746,7 @@ impl<'f> Walk<'f> {
                     cx,
                     a,
                     "source.tube.anode_angle_deg",
-                    Range::closed(1.0, 45.0, "°"),
+                    Range::closed(crate::spectrum::ANODE_ANGLE_RANGE_DEG.0, crate::spectrum::ANODE_ANGLE_RANGE_DEG.1, "°"),
                 )
             })
             .unwrap_or(Some(12.0));
@@ -757,7 +757,7 @@ impl<'f> Walk<'f> {
                     cx,
                     a,
                     "source.tube.ripple_percent",
-                    Range::closed(0.0, 100.0, "%"),
+                    Range::closed(crate::spectrum::RIPPLE_RANGE_PERCENT.0, crate::spectrum::RIPPLE_RANGE_PERCENT.1, "%"),
                 )
             })
             .unwrap_or(Some(0.0));

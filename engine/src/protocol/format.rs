@@ -5,7 +5,7 @@ use std::path::Path;
 
 use serde::Deserialize;
 
-use crate::spectrum::{Anode, KVP_MAX, KVP_MIN};
+use crate::spectrum::{Anode, ANODE_ANGLE_RANGE_DEG, KVP_MAX, KVP_MIN, RIPPLE_RANGE_PERCENT};
 
 /// A protocol file that cannot be used; `Display` gives `file:line:column: key: message`.
 #[derive(Debug, thiserror::Error)]
@@ -140,6 +140,10 @@ pub struct Exam {
     pub kvp: f64,
     /// Anode.
     pub anode: Anode,
+    /// Anode angle (degrees; default that of the tube model, 12°).
+    pub anode_angle_deg: f64,
+    /// Voltage ripple (% of kVp; 0 = constant potential, the default).
+    pub ripple_percent: f64,
     /// Added filters: (material, thickness mm).
     pub filtration: Vec<(String, f64)>,
     /// Tube current–time product (mAs).
@@ -237,6 +241,8 @@ struct ExamToml {
     name: String,
     kvp: f64,
     anode: Option<String>,
+    anode_angle_deg: Option<f64>,
+    ripple_percent: Option<f64>,
     #[serde(default)]
     filtration: Vec<FilterToml>,
     mas: f64,
@@ -326,6 +332,8 @@ struct RawExam {
     name: String,
     kvp: f64,
     anode: Option<String>,
+    anode_angle_deg: Option<f64>,
+    ripple_percent: Option<f64>,
     filtration: Vec<(String, f64)>,
     mas: f64,
     focus_skin_cm: Option<f64>,
@@ -347,6 +355,11 @@ fn resolve(c: &Checker, r: RawExam, default_tol: f64) -> Result<Exam, ProtocolEr
     }
     let kvp = c.range("kvp", r.kvp, KVP_MIN, KVP_MAX, "kV")?;
     let anode = anode_of(c, r.anode.as_deref())?;
+    let default_tube = crate::spectrum::Tube::new(kvp, anode);
+    let (a0, a1) = ANODE_ANGLE_RANGE_DEG;
+    let anode_angle_deg = c.range("anode_angle_deg", r.anode_angle_deg.unwrap_or(default_tube.anode_angle_deg), a0, a1, "°")?;
+    let (r0, r1) = RIPPLE_RANGE_PERCENT;
+    let ripple_percent = c.range("ripple_percent", r.ripple_percent.unwrap_or(default_tube.ripple_percent), r0, r1, "%")?;
     let mut filtration = Vec::new();
     for (i, (m, t)) in r.filtration.iter().enumerate() {
         let key = format!("filtration[{i}]");
@@ -438,6 +451,8 @@ fn resolve(c: &Checker, r: RawExam, default_tol: f64) -> Result<Exam, ProtocolEr
         line: c.line,
         kvp,
         anode,
+        anode_angle_deg,
+        ripple_percent,
         filtration,
         mas,
         distance,
@@ -507,6 +522,8 @@ pub fn parse_toml(text: &str, file: &str) -> Result<Protocol, ProtocolError> {
             name: e.name,
             kvp: e.kvp,
             anode: e.anode,
+            anode_angle_deg: e.anode_angle_deg,
+            ripple_percent: e.ripple_percent,
             filtration: e.filtration.into_iter().map(|f| (f.material, f.thickness_mm)).collect(),
             mas: e.mas,
             focus_skin_cm: e.focus_skin_cm,
@@ -537,10 +554,12 @@ fn check_unique(exams: &[Exam], file: &str) -> Result<(), ProtocolError> {
 }
 
 /// CSV columns, in any order; the first row names them.
-pub const CSV_COLUMNS: [&str; 25] = [
+pub const CSV_COLUMNS: [&str; 27] = [
     "name",
     "kvp",
     "anode",
+    "anode_angle_deg",
+    "ripple_percent",
     "filtration",
     "mas",
     "focus_skin_cm",
@@ -666,6 +685,8 @@ pub fn parse_csv(text: &str, file: &str) -> Result<Protocol, ProtocolError> {
             name: get("name").map(|g| g.0.clone()).unwrap_or_default(),
             kvp: need("kvp")?,
             anode: get("anode").map(|g| g.0.clone()),
+            anode_angle_deg: num("anode_angle_deg")?,
+            ripple_percent: num("ripple_percent")?,
             filtration,
             mas: need("mas")?,
             focus_skin_cm: num("focus_skin_cm")?,

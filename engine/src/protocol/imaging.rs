@@ -132,6 +132,8 @@ field_distance_cm = {fsd}
 [source.tube]
 kvp = {kvp}
 anode = "{anode}"
+anode_angle_deg = {angle}
+ripple_percent = {ripple}
 filters = [{filters}]
 
 [geometry]
@@ -164,6 +166,8 @@ layer = {{ material = "{layer}", thickness_cm = {layer_t} }}
         fw = num(e.field_cm[0]),
         fh = num(e.field_cm[1]),
         kvp = num(e.kvp),
+        angle = num(e.anode_angle_deg),
+        ripple = num(e.ripple_percent),
         filters = filters.join(", "),
         lw = num(lateral_cm[0]),
         lh = num(lateral_cm[1]),

@@ -175,6 +175,8 @@ pub enum EvalError {
 /// The tube model of an exam.
 pub fn tube_of(e: &Exam) -> Tube {
     let mut t = Tube::new(e.kvp, e.anode);
+    t.anode_angle_deg = e.anode_angle_deg;
+    t.ripple_percent = e.ripple_percent;
     for (m, mm) in &e.filtration {
         t = t.with_filter(m, *mm);
     }

@@ -81,6 +81,8 @@ pub fn csv_text(results: &[ExamResult]) -> String {
         let _ = writeln!(s, "{},hvl1_al,mm,{},0,,,,,,,", csv_field(&e.name), r.hvl1_mm_al);
         let _ = writeln!(s, "{},focus_skin_distance,cm,{},0,,,,,,,", csv_field(&e.name), r.fsd_cm);
         let _ = writeln!(s, "{},mas,mAs,{},0,,,,,,,", csv_field(&e.name), e.mas);
+        let _ = writeln!(s, "{},anode_angle,deg,{},0,,,,,,,", csv_field(&e.name), e.anode_angle_deg);
+        let _ = writeln!(s, "{},ripple,%,{},0,,,,,,,", csv_field(&e.name), e.ripple_percent);
         for f in &r.figures {
             let (d, ds) = f.difference_percent.map_or((String::new(), String::new()), |d| (d.value.to_string(), d.sigma.to_string()));
             let _ = writeln!(
@@ -124,6 +126,9 @@ pub fn result_file(p: &Protocol, results: &[ExamResult]) -> ResultFile {
         let mut g = Group::with_kind(&safe_name(i), "protocol_exam");
         g.set_attr("name", r.exam.name.as_str());
         g.set_attr("kvp", r.exam.kvp);
+        g.set_attr("anode", format!("{:?}", r.exam.anode).as_str());
+        g.set_attr("anode_angle_deg", r.exam.anode_angle_deg);
+        g.set_attr("ripple_percent", r.exam.ripple_percent);
         g.set_attr("mas", r.exam.mas);
         g.set_attr("focus_skin_cm", r.fsd_cm);
         g.set_attr("hvl1_mm_al", r.hvl1_mm_al);
@@ -321,9 +326,11 @@ pub fn html_text(p: &Protocol, results: &[ExamResult]) -> Result<String, ReportE
         let patient = patient_text(&e.patient);
         let _ = writeln!(
             h,
-            "<p>{} kV, {:?} anode, added filtration {}; {} mAs; focus–skin {} cm; field {} × {} cm at the skin; patient: {}. Tube output {} µGy/mAs at 1 m, first HVL {} mm Al, mean energy {} keV. Histories: {} free in air, {} with phantom. Tolerance {} %.</p>",
+            "<p>{} kV, {:?} anode at {}°, ripple {} %, added filtration {}; {} mAs; focus–skin {} cm; field {} × {} cm at the skin; patient: {}. Tube output {} µGy/mAs at 1 m, first HVL {} mm Al, mean energy {} keV. Histories: {} free in air, {} with phantom. Tolerance {} %.</p>",
             fmt_num(e.kvp),
             e.anode,
+            fmt_num(e.anode_angle_deg),
+            fmt_num(e.ripple_percent),
             if filt.is_empty() { "none".to_string() } else { esc(&filt.join(" + ")) },
             fmt_num(e.mas),
             fmt_num(r.fsd_cm),

@@ -30,6 +30,7 @@ fn toml_and_csv_demo_protocols_agree() {
         assert_eq!(x.stated, y.stated);
         assert_eq!(x.reference, y.reference);
         assert_eq!(x.tolerance_percent, y.tolerance_percent);
+        assert_eq!((x.anode_angle_deg, x.ripple_percent), (y.anode_angle_deg, y.ripple_percent));
         assert_eq!(x.detector, y.detector);
         assert_eq!(x.patient, y.patient);
     }

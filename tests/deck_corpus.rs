@@ -503,3 +503,42 @@ fn nested_includes_resolve_paths_from_their_own_folders() {
         ]
     );
 }
+
+/// What validation accepts, set-up builds: every good deck, every example deck under runs/ (each
+/// sweep combination), and tube values at the limits validation allows (the tube model's own
+/// ranges: anode angle 3–45°, ripple 0–50 %, filters up to 100 mm). A value validation let
+/// through and set-up then refused would surface only when a run starts, without its position.
+#[test]
+fn validated_decks_build() {
+    use dosemill_engine::setup;
+    let runs = Path::new(env!("CARGO_MANIFEST_DIR")).join("runs");
+    let mut decks = decks_in(&corpus("good"));
+    decks.extend(decks_in(&runs).into_iter().filter(|p| !p.file_name().unwrap().to_string_lossy().starts_with("protocol")));
+    let mut texts: Vec<(PathBuf, String)> = decks.iter().map(|d| (d.clone(), std::fs::read_to_string(d).unwrap())).collect();
+    for (angle, ripple, filters) in [(3.0, 0.0, "[\"Al:100\"]"), (45.0, 50.0, "[{ material = \"Cu\", thickness_cm = 10 }]")] {
+        let text = format!(
+            "[run]\nhistories = 100\n\n[source]\nkind = \"pencil\"\n[source.tube]\nkvp = 300\nanode_angle_deg = {angle}\nripple_percent = {ripple}\nfilters = {filters}\n\n[geometry]\nkind = \"slabs\"\n[[geometry.layer]]\nmaterial = \"water\"\nthickness_cm = 2\n\n[[score]]\nname = \"e\"\nkind = \"escape\"\n"
+        );
+        texts.push((std::env::temp_dir().join("tube_limits.toml"), text));
+    }
+    let mut failures = Vec::new();
+    for (path, text) in &texts {
+        let d = match deck::load_str(text, path) {
+            Ok(d) => d,
+            Err(e) => {
+                failures.push(format!("{}: {}", path.display(), e.iter().map(|x| x.to_string()).collect::<Vec<_>>().join("; ")));
+                continue;
+            }
+        };
+        if let Err(e) = deck::validate_with(&d, &deck::library_lookup) {
+            failures.push(format!("{}: {}", path.display(), e.iter().map(|x| x.to_string()).collect::<Vec<_>>().join("; ")));
+            continue;
+        }
+        for (_, r) in deck::expand(&d).into_iter().take(4) {
+            if let Err(e) = setup::build(&r) {
+                failures.push(format!("{}: validated, but set-up refused it: {e}", path.display()));
+            }
+        }
+    }
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+}

@@ -794,7 +794,8 @@ impl<'f> Walk<'f> {
     }
 
     fn filter(&mut self, n: &Node, path: &str) -> Option<Filter> {
-        const THICK: Range = Range::pos(100.0, "cm");
+        // The tube model's own limit (`spectrum::FILTER_MAX_MM`), so set-up never refuses what passes here.
+        const THICK: Range = Range::pos(crate::spectrum::FILTER_MAX_MM / 10.0, "cm");
         match &n.val {
             Val::Str(s) => {
                 // "<material>:<thickness>[unit]", thickness in mm unless a unit is written.
@@ -878,7 +879,7 @@ impl<'f> Walk<'f> {
                         None
                     }
                     (Some(m), None) => {
-                        num_in(cx, m, &t.kp("thickness_mm"), Range::pos(1000.0, "mm"))
+                        num_in(cx, m, &t.kp("thickness_mm"), Range::pos(crate::spectrum::FILTER_MAX_MM, "mm"))
                             .map(|v| v / 10.0)
                     }
                     (None, Some(c)) => num_in(cx, c, &t.kp("thickness_cm"), THICK),
@@ -1719,6 +1720,16 @@ impl<'f> Walk<'f> {
                 })
             }
             "voxel_dose" => {
+                if matches!(geometry, Some(Geometry::Slabs(_))) {
+                    let at = t.get("kind").map_or(t.loc(), |k| k.loc);
+                    self.cx.err(
+                        at,
+                        &t.kp("kind"),
+                        "a `voxel_dose` score needs voxel geometry; this deck's geometry is slabs",
+                        Some("in slabs score `kind = \"depth_dose\"`; for a dose grid, build the layers as boxes of a `[geometry] kind = \"voxels\"` phantom".into()),
+                    );
+                    return None;
+                }
                 let est =
                     match t.choice_or(cx, "estimator", &["analog", "track_length"], "track_length")
                     {
@@ -1740,13 +1751,7 @@ impl<'f> Walk<'f> {
                         )?;
                         Some(self.grid(&gt, "scoring grid")?)
                     }
-                    None => {
-                        if matches!(geometry, Some(Geometry::Slabs(_))) {
-                            self.cx.err(t.loc(), &t.kp("grid"), "a `voxel_dose` score in slab geometry needs its own grid", Some("add `grid = { voxels = [nx, ny, nz], voxel_size_cm = ..., origin_cm = [...] }`".into()));
-                            return None;
-                        }
-                        None
-                    }
+                    None => None,
                 };
                 if est_bad {
                     return None;

@@ -88,7 +88,7 @@ mod tube;
 
 pub use model::{compute_spectrum, SpectrumOptions};
 pub use quality::{air_kerma_ugy_per_mas, hvls_mm, solve_added_filtration, solve_added_filtration_for, BeamQuality};
-pub use tube::{Anode, Filter, InherentFiltration, Tube, ANODE_ANGLE_RANGE_DEG, KVP_MAX, KVP_MIN, RIPPLE_RANGE_PERCENT};
+pub use tube::{Anode, Filter, InherentFiltration, Tube, ANODE_ANGLE_RANGE_DEG, FILTER_MAX_MM, KVP_MAX, KVP_MIN, RIPPLE_RANGE_PERCENT};
 
 use serde::Serialize;
 

@@ -82,7 +82,12 @@ impl<'a> MuAt<'a> {
     /// μ/ρ of `materials` at `kev`.
     #[inline]
     pub fn new(materials: &'a [MaterialXs], kev: f64) -> Self {
-        let ln_kev = kev.ln();
+        Self::new_ln(materials, kev.ln())
+    }
+
+    /// μ/ρ of `materials` at the energy whose logarithm is `ln_kev`.
+    #[inline]
+    pub fn new_ln(materials: &'a [MaterialXs], ln_kev: f64) -> Self {
         let mut first = [0.0; Self::TABLED];
         for (v, t) in first.iter_mut().zip(materials) {
             *v = t.mu_rho_at(t.lookup_ln(ln_kev));

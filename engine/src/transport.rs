@@ -204,6 +204,7 @@ impl Photon {
             pos: self.pos,
             dir: self.dir,
             kev: self.kev,
+            ln_kev: self.ln_kev,
             weight: self.weight,
             incoherent: self.incoherent,
             coherent: self.coherent,

@@ -477,8 +477,8 @@ impl PartialEq for DetectorScorer {
 
 /// Linear attenuation (1/cm) of each problem material at one energy.
 #[inline]
-fn mu_all(materials: &[MaterialXs], kev: f64, out: &mut [f64; MAX_MATERIALS]) {
-    *out = *MuAt::new(materials, kev).tabled();
+fn mu_all(materials: &[MaterialXs], ln_kev: f64, out: &mut [f64; MAX_MATERIALS]) {
+    *out = *MuAt::new_ln(materials, ln_kev).tabled();
 }
 
 /// Mass thickness (g/cm²) per material along a segment (one walk serves every energy); returns
@@ -491,6 +491,11 @@ fn mass_thickness(geometry: &Geometry, n_materials: usize, from: Vec3, dir: Vec3
     out[..n_materials].iter_mut().for_each(|v| *v = 0.0);
     match geometry {
         Geometry::Slabs(slabs) => {
+            // Closed form where the segment stays inside the layers' lateral prism (every
+            // segment of a laterally infinite stack inside the world's width).
+            if slabs.prism_mass_thickness(from, dir, length_cm, |m, t| out[m as usize] += t) {
+                return true;
+            }
             let mut p = from;
             let mut r = slabs.locate(p);
             if r.is_escaped() {
@@ -762,6 +767,40 @@ impl DetectorScorer {
         t.add(base + pn + 4, value_no_grid / all_n, history);
     }
 
+    /// Adds the scatter contributions of one next-event point at pixel (iu, iv): `value[c]`
+    /// with the grid and `value_no_grid[c]` without it for every scatter category c with
+    /// `value_no_grid[c] > 0`; their sums go once into the scatter and total images and the
+    /// summary bins (as [`Self::score`] per category would, with one table update each).
+    #[inline]
+    fn score_scatter(s: &DetectorSetup, t: &mut Tally, iu: usize, iv: usize, value: &[f64; N_CAT], value_no_grid: &[f64; N_CAT], history: u64) {
+        let np = s.spec.pixels[0] * s.spec.pixels[1];
+        let pix = iv * s.spec.pixels[0] + iu;
+        let (mut sum, mut sum_no_grid) = (0.0, 0.0);
+        let mut any = false;
+        for cat in [CAT_COMPTON, CAT_RAYLEIGH, CAT_MULTIPLE, CAT_FLUORESCENCE] {
+            if value_no_grid[cat] > 0.0 {
+                t.add(cat * np + pix, value[cat], history);
+                sum += value[cat];
+                sum_no_grid += value_no_grid[cat];
+                any = true;
+            }
+        }
+        if !any {
+            return;
+        }
+        let base = N_CAT * np;
+        t.add(CAT_TOTAL * np + pix, sum, history);
+        t.add(CAT_SCATTER * np + pix, sum, history);
+        if iu >= s.roi[0] && iu < s.roi[1] && iv >= s.roi[2] && iv < s.roi[3] {
+            let roi_n = s.roi_pixels as f64;
+            t.add(base + summary::ROI_SCATTER, sum / roi_n, history);
+            t.add(base + summary::ROI_SCATTER_NO_GRID, sum_no_grid / roi_n, history);
+        }
+        let all_n = np as f64;
+        t.add(base + summary::ALL_SCATTER, sum / all_n, history);
+        t.add(base + summary::ALL_SCATTER_NO_GRID, sum_no_grid / all_n, history);
+    }
+
     /// Category of a photon by its history.
     #[inline]
     fn category(p: &PhotonView) -> usize {
@@ -846,7 +885,7 @@ impl DetectorScorer {
         if !s.spec.forced_detection || !s.spec.fd_along_flights {
             return;
         }
-        let mu = MuAt::new(&problem.materials, ph.kev);
+        let mu = MuAt::new_ln(&problem.materials, ph.ln_kev);
         let ray = crate::raytrace::RayPieces::trace(&problem.geometry, &mu, ph.pos, ph.dir);
         let total = ray.total;
         if !(total > 0.0) {
@@ -900,7 +939,7 @@ impl DetectorScorer {
         let ph = &site.photon;
         let mut rng = site_stream(ph, history);
         let mut mu_e = [0.0; MAX_MATERIALS];
-        mu_all(&problem.materials, ph.kev, &mut mu_e);
+        mu_all(&problem.materials, ph.ln_kev, &mut mu_e);
         let Some(weight) = self.roulette(problem, ph, &mu_e, &mut rng) else { return };
         // Fluorescence lines of a photoelectric site, sampled with the scorer's own stream.
         let mut lines = fluorescence::Emitted::default();
@@ -964,7 +1003,7 @@ impl DetectorScorer {
         // own channel probabilities.
         let mut a_inc = [0.0; MAX_COMPONENTS];
         let mut a_coh = [0.0; MAX_COMPONENTS];
-        let ln_kev = kev.ln();
+        let ln_kev = ph.ln_kev;
         let elems = &s.material_elements[m];
         let mut shares = [0.0; 3 * MAX_COMPONENTS];
         material.channel_probabilities_at(material.lookup_ln(ln_kev), &mut shares[..3 * elems.len()]);
@@ -1165,11 +1204,7 @@ impl NextEvent<'_> {
                 val[CAT_FLUORESCENCE] += v * DetectorScorer::grid_at(s, line, du, dir);
             }
         }
-        for cat in [CAT_COMPTON, CAT_RAYLEIGH, CAT_MULTIPLE, CAT_FLUORESCENCE] {
-            if raw[cat] > 0.0 {
-                DetectorScorer::score(s, tally, cat, iu, iv, val[cat], raw[cat], history);
-            }
-        }
+        DetectorScorer::score_scatter(s, tally, iu, iv, &val, &raw, history);
     }
 }
 
@@ -1206,7 +1241,7 @@ impl DetectorSetup {
             .iter()
             .map(|&(e, _)| {
                 let mut m = [0.0; MAX_MATERIALS];
-                mu_all(materials, e, &mut m);
+                mu_all(materials, e.ln(), &mut m);
                 m
             })
             .collect();

@@ -31,6 +31,8 @@ pub struct PhotonView {
     pub dir: Vec3,
     /// Energy (keV).
     pub kev: f64,
+    /// ln(kev), as the transport keeps it (the same bits as `kev.ln()`).
+    pub ln_kev: f64,
     /// Statistical weight.
     pub weight: f64,
     /// Incoherent scatterings so far (of this photon; a fluorescence photon starts at zero).

@@ -304,7 +304,7 @@ impl SlabStack {
         let q = p + d * length_cm;
         let b = &self.block;
         let inside = |v: Vec3| v.x >= b.min_cm.x && v.x <= b.max_cm.x && v.y >= b.min_cm.y && v.y <= b.max_cm.y;
-        if d.z == 0.0 || !(length_cm >= 0.0 && length_cm.is_finite()) || !inside(p) || !inside(q) {
+        if !(d.z != 0.0 && length_cm >= 0.0 && length_cm.is_finite() && inside(p) && inside(q)) {
             return false;
         }
         let inv = 1.0 / d.z.abs();
@@ -312,7 +312,7 @@ impl SlabStack {
         // The world box clips the segment in z; laterally the block lies inside it.
         let w = &self.world.bounds;
         let (wa, wb) = (za.max(w.min_cm.z), zb.min(w.max_cm.z));
-        if !(wb > wa) {
+        if wb <= wa {
             return true;
         }
         let n = self.layers.len();

@@ -746,25 +746,8 @@ impl DetectorScorer {
     #[inline]
     fn score(s: &DetectorSetup, t: &mut Tally, cat: usize, iu: usize, iv: usize, value: f64, value_no_grid: f64, history: u64) {
         let np = s.spec.pixels[0] * s.spec.pixels[1];
-        let pix = iv * s.spec.pixels[0] + iu;
-        let in_roi = iu >= s.roi[0] && iu < s.roi[1] && iv >= s.roi[2] && iv < s.roi[3];
-        let roi_n = s.roi_pixels as f64;
-        let all_n = np as f64;
-        let base = N_CAT * np;
-        t.add(cat * np + pix, value, history);
-        t.add(CAT_TOTAL * np + pix, value, history);
-        let (p, pn) = if cat == CAT_PRIMARY {
-            (summary::ROI_PRIMARY, summary::ROI_PRIMARY_NO_GRID)
-        } else {
-            t.add(CAT_SCATTER * np + pix, value, history);
-            (summary::ROI_SCATTER, summary::ROI_SCATTER_NO_GRID)
-        };
-        if in_roi {
-            t.add(base + p, value / roi_n, history);
-            t.add(base + pn, value_no_grid / roi_n, history);
-        }
-        t.add(base + p + 4, value / all_n, history);
-        t.add(base + pn + 4, value_no_grid / all_n, history);
+        t.add(cat * np + iv * s.spec.pixels[0] + iu, value, history);
+        Self::score_sums(s, t, cat == CAT_PRIMARY, iu, iv, value, value_no_grid, history);
     }
 
     /// Adds the scatter contributions of one next-event point at pixel (iu, iv): `value[c]`
@@ -776,29 +759,42 @@ impl DetectorScorer {
         let np = s.spec.pixels[0] * s.spec.pixels[1];
         let pix = iv * s.spec.pixels[0] + iu;
         let (mut sum, mut sum_no_grid) = (0.0, 0.0);
-        let mut any = false;
         for cat in [CAT_COMPTON, CAT_RAYLEIGH, CAT_MULTIPLE, CAT_FLUORESCENCE] {
             if value_no_grid[cat] > 0.0 {
                 t.add(cat * np + pix, value[cat], history);
                 sum += value[cat];
                 sum_no_grid += value_no_grid[cat];
-                any = true;
             }
         }
-        if !any {
-            return;
+        // Positive exactly when some category was added.
+        if sum_no_grid > 0.0 {
+            Self::score_sums(s, t, false, iu, iv, sum, sum_no_grid, history);
         }
+    }
+
+    /// What every contribution at pixel (iu, iv) adds beside its category image: the total
+    /// image, the scatter image (scatter only) and the ROI and whole-face summary bins.
+    #[inline]
+    #[allow(clippy::too_many_arguments)]
+    fn score_sums(s: &DetectorSetup, t: &mut Tally, primary: bool, iu: usize, iv: usize, value: f64, value_no_grid: f64, history: u64) {
+        let np = s.spec.pixels[0] * s.spec.pixels[1];
+        let pix = iv * s.spec.pixels[0] + iu;
         let base = N_CAT * np;
-        t.add(CAT_TOTAL * np + pix, sum, history);
-        t.add(CAT_SCATTER * np + pix, sum, history);
+        t.add(CAT_TOTAL * np + pix, value, history);
+        let (p, pn) = if primary {
+            (summary::ROI_PRIMARY, summary::ROI_PRIMARY_NO_GRID)
+        } else {
+            t.add(CAT_SCATTER * np + pix, value, history);
+            (summary::ROI_SCATTER, summary::ROI_SCATTER_NO_GRID)
+        };
         if iu >= s.roi[0] && iu < s.roi[1] && iv >= s.roi[2] && iv < s.roi[3] {
             let roi_n = s.roi_pixels as f64;
-            t.add(base + summary::ROI_SCATTER, sum / roi_n, history);
-            t.add(base + summary::ROI_SCATTER_NO_GRID, sum_no_grid / roi_n, history);
+            t.add(base + p, value / roi_n, history);
+            t.add(base + pn, value_no_grid / roi_n, history);
         }
         let all_n = np as f64;
-        t.add(base + summary::ALL_SCATTER, sum / all_n, history);
-        t.add(base + summary::ALL_SCATTER_NO_GRID, sum_no_grid / all_n, history);
+        t.add(base + p + 4, value / all_n, history);
+        t.add(base + pn + 4, value_no_grid / all_n, history);
     }
 
     /// Category of a photon by its history.

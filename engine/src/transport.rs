@@ -469,6 +469,9 @@ impl Problem {
                 }
                 p.pos = walk.point(s);
                 p.region = Region::object(v);
+                for sc in ctx.scorers.iter() {
+                    sc.collision_ahead(v);
+                }
                 match local.kept(m) {
                     Some((at, mu_rho)) => p.keep_lookup(m, at, mu_rho),
                     None => {

@@ -315,6 +315,15 @@ impl Scorer {
         }
     }
 
+    /// A real collision about to happen in phantom voxel `v` (a hint: scorers that will read
+    /// memory for its deposits may ask for it now).
+    #[inline]
+    pub fn collision_ahead(&self, v: usize) {
+        if let Scorer::VoxelDose(d) = self {
+            d.collision_ahead(v);
+        }
+    }
+
     /// A photon leaving the problem.
     #[inline]
     pub fn escape(&mut self, photon: &PhotonView, history: u64) {

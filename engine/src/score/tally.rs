@@ -310,6 +310,24 @@ impl Tally {
         self.len() == 0
     }
 
+    /// Asks for the cache line of bin `bin`'s sums, without waiting for it (a hint ahead of an
+    /// [`Self::add`] there).
+    #[inline(always)]
+    pub fn prefetch(&self, bin: usize) {
+        match &self.store {
+            Store::Dense { sums, .. } => {
+                if let Some(w) = sums.get(bin) {
+                    dosemill_geometry::prefetch(w);
+                }
+            }
+            Store::Shared { sums, .. } => {
+                if let Some(w) = sums.words.get(bin) {
+                    dosemill_geometry::prefetch(w);
+                }
+            }
+        }
+    }
+
     /// Adds `value` to bin `bin` for history `history`.
     #[inline(always)]
     pub fn add(&mut self, bin: usize, value: f64, history: u64) {
@@ -321,9 +339,9 @@ impl Tally {
                 }
                 debug_assert!(bin < sums.len());
                 if pending.add(bin as u32, value) {
-                    // Touch the bin's sums now, so their cache line is on its way before the fold.
+                    // Ask for the bin's sums now, so their cache line is on its way before the fold.
                     if let Some(w) = sums.get(bin) {
-                        std::hint::black_box(w[0]);
+                        dosemill_geometry::prefetch(w);
                     }
                 }
             }
@@ -337,7 +355,7 @@ impl Tally {
                     // Read the bin's words now, so their cache line is on its way long before the
                     // history ends and its totals are added there.
                     if let Some(w) = sums.words.get(bin) {
-                        std::hint::black_box(w[0].load(Ordering::Relaxed));
+                        dosemill_geometry::prefetch(w);
                     }
                 }
             }

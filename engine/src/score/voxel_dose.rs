@@ -120,6 +120,21 @@ impl VoxelDose {
         bricks.and_then(|b| b.get(c)).unwrap_or_else(|| labels.0[v])
     }
 
+    /// A real collision about to happen in phantom voxel `v`: asks for the dose bin's sums and
+    /// the voxel's region label, which the deposits there will read, so that the interaction's
+    /// sampling hides their cache misses. Changes no value.
+    #[inline]
+    pub fn collision_ahead(&self, v: usize) {
+        if self.estimator != DoseEstimator::Analog || v >= self.grid.num_voxels() {
+            return;
+        }
+        let c = self.ijk(v);
+        self.tally.prefetch(self.bin_of_cell(c));
+        if let Some(b) = self.label_bricks.as_deref() {
+            b.prefetch(c);
+        }
+    }
+
     /// Energy deposited at an interaction point.
     #[inline]
     pub fn deposit(&mut self, region: Region, pos: Vec3, kev: f64, history: u64) {

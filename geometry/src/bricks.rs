@@ -371,8 +371,7 @@ impl BrickTable {
     /// (read the voxel itself).
     #[inline(always)]
     pub fn get(&self, c: [usize; 3]) -> Option<u16> {
-        let k = (c[0] >> BRICK_SHIFT) + self.dims[0] * ((c[1] >> BRICK_SHIFT) + self.dims[1] * (c[2] >> BRICK_SHIFT));
-        let t = self.top[k];
+        let t = self.top[self.brick_of(c)];
         let v = if t & SPLIT == 0 { t as u16 } else { self.cells[(t & !SPLIT) as usize * 64 + Self::cell_of(c)] };
         (v != VARIES).then_some(v)
     }
@@ -381,16 +380,21 @@ impl BrickTable {
     /// brick is split), without waiting for it.
     #[inline(always)]
     pub fn prefetch(&self, c: [usize; 3]) {
-        let k = (c[0] >> BRICK_SHIFT) + self.dims[0] * ((c[1] >> BRICK_SHIFT) + self.dims[1] * (c[2] >> BRICK_SHIFT));
         // The brick's entry is small and usually cached; reading it here lets the split
         // brick's cell entry, the likelier miss, be asked for too.
-        if let Some(&t) = self.top.get(k) {
-            if t & SPLIT != 0 {
-                if let Some(v) = self.cells.get((t & !SPLIT) as usize * 64 + Self::cell_of(c)) {
-                    crate::prefetch(v);
-                }
-            }
+        let Some(&t) = self.top.get(self.brick_of(c)) else { return };
+        if t & SPLIT == 0 {
+            return;
         }
+        if let Some(v) = self.cells.get((t & !SPLIT) as usize * 64 + Self::cell_of(c)) {
+            crate::prefetch(v);
+        }
+    }
+
+    /// Index into `top` of the brick holding voxel `c`.
+    #[inline(always)]
+    fn brick_of(&self, c: [usize; 3]) -> usize {
+        (c[0] >> BRICK_SHIFT) + self.dims[0] * ((c[1] >> BRICK_SHIFT) + self.dims[1] * (c[2] >> BRICK_SHIFT))
     }
 
     /// Heap bytes held.
